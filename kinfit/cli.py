@@ -1,0 +1,90 @@
+"""The command line: parses arguments and calls the Python API; nothing else lives here.
+
+Exit codes: 0 done; 1 ran but did not converge or failed a criterion asked for; 2 bad input.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from collections.abc import Callable, Sequence
+from pathlib import Path
+
+from kinfit.errors import KinfitError, StudyError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_OK, EXIT_FAILED, EXIT_BAD_INPUT = 0, 1, 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that raises StudyError instead of exiting, so every bad input exits 2 alike."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise StudyError(f"{self.prog}: {message}; see '{self.prog} --help'")
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from kinfit.campaign import campaign_summary
+    from kinfit.study import load_study
+
+    study = load_study(args.study)
+    print(campaign_summary(study))
+    print("\nstudy is valid")
+    return EXIT_OK
+
+
+COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "check": ("validate a study and show what the campaign can tell", _cmd_check),
+}
+
+
+def _add_common(p: argparse.ArgumentParser, *, out: bool = False) -> None:
+    p.add_argument("study", type=Path, help="the study file (TOML)")
+    if out:
+        p.add_argument("--out", type=Path, default=Path("reports"),
+                       help="output folder (default: reports)")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with every subcommand."""
+    parser = _Parser(prog="kinfit", description="Intrinsic kinetics from porous-catalyst "
+                     "campaigns: transport-aware fitting, uncertainty, diagnosis, reports.")
+    from kinfit import __version__
+
+    parser.add_argument("--version", action="version", version=f"kinfit {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name, (help_text, _) in COMMANDS.items():
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        _ARGUMENTS.get(name, lambda q: _add_common(q))(p)
+    return parser
+
+
+_ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {}
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``kinfit`` console script; returns the exit code."""
+    try:
+        parser = build_parser()
+        args = parser.parse_args(argv)
+        if not args.command:
+            parser.print_help()
+            return EXIT_BAD_INPUT
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")
+            return COMMANDS[args.command][1](args)
+    except StudyError as exc:
+        print(f"kinfit: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KinfitError as exc:
+        print(f"kinfit: failed: {exc}", file=sys.stderr)
+        return EXIT_FAILED
+    except KeyboardInterrupt:
+        print("kinfit: interrupted; outputs written so far are kept", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

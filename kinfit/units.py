@@ -1,0 +1,217 @@
+"""Units at the boundary: parse quantity strings and column headers with pint and convert to SI.
+
+Nothing inside kinfit handles non-SI numbers; this module is the only conversion path.
+Stirrer speeds are converted to revolutions per second (pint's ``rpm`` is an angular speed, so a
+plain ``.to("1/s")`` would give rad/s); temperatures with an offset unit (degC, degF) are parsed
+with magnitude and unit apart so they convert correctly.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+
+import pint
+
+from kinfit.errors import StudyError
+
+__all__ = ["QUANTITY_KINDS", "SI_UNIT", "parse_quantity", "parse_header", "to_si", "ureg"]
+
+ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+ureg.define("rps = revolution / second")
+
+#: Kinds of quantity kinfit reads, with the SI unit it stores and the dimensionality pint checks.
+QUANTITY_KINDS: dict[str, tuple[str, str]] = {
+    "temperature": ("K", "[temperature]"),
+    "time": ("s", "[time]"),
+    "concentration": ("mol/m^3", "[substance] / [length] ** 3"),
+    "speed": ("1/s", "1 / [time]"),
+    "length": ("m", "[length]"),
+    "loading": ("kg/m^3", "[mass] / [length] ** 3"),
+    "density": ("kg/m^3", "[mass] / [length] ** 3"),
+    "volume": ("m^3", "[length] ** 3"),
+    "energy_per_mol": ("J/mol", "[mass] * [length] ** 2 / [time] ** 2 / [substance]"),
+    "rate_per_mass": ("mol/(kg*s)", "[substance] / [mass] / [time]"),
+    "diffusivity": ("m^2/s", "[length] ** 2 / [time]"),
+    "velocity": ("m/s", "[length] / [time]"),
+    "per_concentration": ("m^3/mol", "[length] ** 3 / [substance]"),
+    "viscosity": ("Pa*s", "[mass] / [length] / [time]"),
+    "molar_mass": ("kg/mol", "[mass] / [substance]"),
+    "molar_volume": ("m^3/mol", "[length] ** 3 / [substance]"),
+    "dimensionless": ("1", "[]"),
+}
+
+#: SI unit string stored beside each kind in results.
+SI_UNIT = {kind: unit for kind, (unit, _) in QUANTITY_KINDS.items()}
+
+_HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[(.*)\])?\s*$")
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+_ALIASES = {"-": "", "1": "", "%": "percent", "um": "micrometer", "µm": "micrometer",
+            "μm": "micrometer", "M": "mol/L"}
+
+
+_ANGLES = {"revolution", "revolutions_per_minute", "rps", "turn", "radian", "degree"}
+
+
+@dataclass(frozen=True)
+class Header:
+    """A parsed column header ``name [unit]``."""
+
+    name: str
+    unit: str | None
+
+
+@lru_cache(maxsize=512)
+def _unit(text: str) -> pint.Unit:
+    text = text.strip()
+    text = _ALIASES.get(text, text)
+    return ureg.Unit(text) if text else ureg.dimensionless
+
+
+def _factor(unit_text: str, kind: str, where: str) -> tuple[float, float]:
+    """Scale and offset taking a number in ``unit_text`` to the SI unit of ``kind``."""
+    si, dim = QUANTITY_KINDS[kind]
+    try:
+        unit = _unit(unit_text)
+    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError,
+            AttributeError, TypeError, ValueError, AssertionError) as exc:
+        raise StudyError(
+            f"{where}: unit '{unit_text}' is not recognised ({exc.__class__.__name__}); "
+            f"write a {kind} unit such as '{_EXAMPLE[kind]}'"
+        ) from None
+    if kind == "speed" and _ANGLES & {str(name) for name in unit._units}:
+        target = ureg.rps  # an angle per time: count revolutions, not radians
+    else:
+        target = _unit(si)
+    if unit.dimensionality != target.dimensionality:
+        raise StudyError(
+            f"{where}: unit '{unit_text}' is not a {kind} unit (it is "
+            f"{unit.dimensionality or 'dimensionless'}); write a unit such as '{_EXAMPLE[kind]}'"
+        )
+    q0 = ureg.Quantity(0.0, unit).to(target).magnitude
+    q1 = ureg.Quantity(1.0, unit).to(target).magnitude
+    return q1 - q0, q0
+
+
+_EXAMPLE = {
+    "temperature": "K or degC",
+    "time": "s, min or h",
+    "concentration": "mol/L or mol/m^3",
+    "speed": "rpm or 1/s",
+    "length": "um or mm",
+    "loading": "g/L or kg/m^3",
+    "density": "kg/m^3 or g/cm^3",
+    "volume": "mL or L",
+    "energy_per_mol": "kJ/mol",
+    "rate_per_mass": "mol/(kg*s) or mmol/(g*min)",
+    "diffusivity": "m^2/s or cm^2/s",
+    "velocity": "m/s",
+    "per_concentration": "L/mol or m^3/mol",
+    "viscosity": "mPa*s or cP",
+    "molar_mass": "g/mol",
+    "molar_volume": "cm^3/mol",
+    "dimensionless": "- (dimensionless)",
+}
+
+
+def to_si(values, unit_text: str, kind: str, *, where: str = "value"):
+    """Convert numbers (scalar or numpy array) given in ``unit_text`` to the SI unit of ``kind``.
+
+    Parameters
+    ----------
+    values : float or ndarray
+        Magnitudes in ``unit_text``.
+    unit_text : str
+        A pint unit expression, for example ``"degC"``, ``"rpm"``, ``"um"``, ``"mol/L"``.
+    kind : str
+        One of :data:`QUANTITY_KINDS`.
+    where : str
+        Names the source (file, column) in error messages.
+
+    Examples
+    --------
+    >>> float(to_si(45.0, "degC", "temperature"))
+    318.15
+    >>> float(to_si(600.0, "rpm", "speed"))
+    10.0
+    """
+    if kind not in QUANTITY_KINDS:
+        raise KeyError(kind)
+    scale, offset = _factor(unit_text, kind, where)
+    return values * scale + offset
+
+
+def parse_quantity(text: object, kind: str, *, where: str = "value") -> float:
+    """Parse a quantity string such as ``"250 rpm"`` or ``"45 degC"`` into SI.
+
+    A bare number is accepted only for a dimensionless kind.
+
+    Examples
+    --------
+    >>> parse_quantity("75 um", "length")
+    7.5e-05
+    >>> parse_quantity("60 kJ/mol", "energy_per_mol")
+    60000.0
+    """
+    if isinstance(text, bool):
+        raise StudyError(f"{where}: expected a {kind} such as '{_example_value(kind)}', got {text}")
+    if isinstance(text, int | float):
+        if kind == "dimensionless":
+            return float(text)
+        raise StudyError(
+            f"{where}: the number {text} has no unit; write it as a string with its unit, "
+            f"for example \"{_example_value(kind)}\""
+        )
+    if not isinstance(text, str):
+        raise StudyError(
+            f"{where}: expected a {kind} string such as \"{_example_value(kind)}\", "
+            f"got {type(text).__name__}"
+        )
+    m = _NUMBER.match(text)
+    if not m:
+        raise StudyError(
+            f"{where}: cannot read '{text}' as a number with a unit; "
+            f"write it like \"{_example_value(kind)}\""
+        )
+    magnitude = float(m.group(1))
+    unit_text = m.group(2)
+    if not unit_text and kind != "dimensionless":
+        raise StudyError(
+            f"{where}: '{text}' has no unit; write it like \"{_example_value(kind)}\""
+        )
+    value = float(to_si(magnitude, unit_text, kind, where=where))
+    if value != value or value in (float("inf"), float("-inf")):
+        raise StudyError(f"{where}: '{text}' is not a finite number")
+    return value
+
+
+def _example_value(kind: str) -> str:
+    return {
+        "temperature": "45 degC", "time": "30 min", "concentration": "0.5 mol/L",
+        "speed": "600 rpm", "length": "75 um", "loading": "2 g/L",
+        "density": "1500 kg/m^3", "volume": "0.3 L", "energy_per_mol": "60 kJ/mol",
+        "rate_per_mass": "0.01 mol/(kg*s)", "diffusivity": "1e-9 m^2/s",
+        "velocity": "0.01 m/s", "per_concentration": "1 L/mol", "viscosity": "0.89 mPa*s",
+        "molar_mass": "18 g/mol", "molar_volume": "100 cm^3/mol", "dimensionless": "0.5",
+    }[kind]
+
+
+def parse_header(text: str, *, where: str) -> Header:
+    """Split a column header ``name [unit]`` into its name and unit text.
+
+    Examples
+    --------
+    >>> parse_header("temperature [degC]", where="runs.csv")
+    Header(name='temperature', unit='degC')
+    >>> parse_header("run", where="runs.csv")
+    Header(name='run', unit=None)
+    """
+    m = _HEADER.match(str(text))
+    if not m:
+        raise StudyError(
+            f"{where}: column header '{text}' is not of the form 'name [unit]'; "
+            "write for example 'temperature [degC]'"
+        )
+    unit = m.group(2)
+    return Header(m.group(1), None if unit is None else unit.strip())
