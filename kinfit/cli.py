@@ -35,8 +35,28 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_simulate(args: argparse.Namespace) -> int:
+    from kinfit.outputs import manifest, prepare_out_dir, write_frame_atomic, write_json_atomic
+    from kinfit.simulate import runs_frame, simulate
+    from kinfit.study import load_study
+
+    study = load_study(args.study)
+    sim = simulate(study)
+    out = prepare_out_dir(args.out)
+    write_frame_atomic(out / "predictions.csv", sim.predictions)
+    write_frame_atomic(out / "runs.csv", runs_frame(sim.runs))
+    write_json_atomic(out / "simulation.json", {
+        "study": study.name, "parameters": dict(study.parameters.values()), "runs": sim.runs,
+        "manifest": manifest(files=study.files),
+    })
+    print(runs_frame(sim.runs).to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+    print(f"\nwrote {out / 'predictions.csv'}, {out / 'runs.csv'}, {out / 'simulation.json'}")
+    return EXIT_OK
+
+
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
     "check": ("validate a study and show what the campaign can tell", _cmd_check),
+    "simulate": ("predict every run at the study's parameter values", _cmd_simulate),
 }
 
 
@@ -61,7 +81,9 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-_ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {}
+_ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
+    "simulate": lambda p: _add_common(p, out=True),
+}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

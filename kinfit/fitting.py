@@ -1,0 +1,248 @@
+"""The joint fit of a study: build the model, run the chemistry-free estimator, add intervals
+(linearised, profile likelihood, bootstrap on request), identifiability in the trade's words,
+per-run criteria and regime, and model comparison across candidate models.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from concurrent.futures import Executor
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from kinfit.criteria import Thresholds
+from kinfit.errors import StudyError
+from kinfit.estimate.least_squares import Estimate, fit_problem
+from kinfit.estimate.uncertainty import (
+    bootstrap,
+    identifiability,
+    linearised_intervals,
+    profile_intervals,
+)
+from kinfit.identifiability import identifiability_warnings
+from kinfit.model import Model, ModelSpec
+from kinfit.outputs import manifest
+from kinfit.results import FitResult
+from kinfit.simulate import point_table, run_table
+from kinfit.study import Study
+
+__all__ = ["FitOptions", "fit", "fit_model", "parse_candidate", "compare_models"]
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """Options of a fit (values only; checked when the fit starts).
+
+    Attributes
+    ----------
+    multistart : int
+        Extra starts from a Sobol design inside the bounds (0: the study's values only).
+    seed : int or None
+        Seed of the multistart design and the bootstrap.
+    profile : bool
+        Compute profile-likelihood intervals.
+    bootstrap : int
+        Bootstrap replicates (0: none).
+    bootstrap_kind : {"residual", "group"}
+        Resample residuals, or whole runs.
+    progress : bool
+        Progress bars for long computations.
+    thresholds : Thresholds
+        Criteria limits for the per-run table.
+    executor : Executor or None
+        Runs independent refits in parallel.
+    max_nfev : int or None
+    """
+
+    multistart: int = 0
+    seed: int | None = None
+    profile: bool = True
+    bootstrap: int = 0
+    bootstrap_kind: str = "residual"
+    progress: bool = False
+    thresholds: Thresholds = field(default_factory=Thresholds)
+    executor: Executor | None = None
+    max_nfev: int | None = None
+
+    def check(self) -> None:
+        """Raise StudyError for invalid option values."""
+        if not isinstance(self.multistart, int) or self.multistart < 0:
+            raise StudyError(f"the 'multistart' option of fit() must be an int >= 0. Got "
+                             f"{self.multistart!r} instead.")
+        if not isinstance(self.bootstrap, int) or self.bootstrap < 0:
+            raise StudyError(f"the 'bootstrap' option of fit() must be an int >= 0. Got "
+                             f"{self.bootstrap!r} instead.")
+        if self.bootstrap_kind not in ("residual", "group"):
+            raise StudyError("the 'bootstrap_kind' option of fit() must be 'residual' or "
+                             f"'group'. Got {self.bootstrap_kind!r} instead.")
+
+
+def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
+    law = spec.rate_law
+    return {
+        "label": spec.label,
+        "rate_law": law.name,
+        "rate_law_options": getattr(law, "options", {}),
+        "film": spec.film.name,
+        "film_options": getattr(spec.film, "options", {}),
+        "pellet": spec.pellet,
+        "geometry": spec.geometry,
+        "particle_density": spec.particle_density,
+        "reactor": spec.reactor,
+        "error_model": study.error_model,
+        "equations": {
+            "rate": "r = k(T) (Cs/C_ref)^n, k(T) = k_ref exp(-Ea/R (1/T - 1/T_ref))"
+            if law.name == "power" else f"rate law '{law.name}'",
+            "film": "kc a_m (Cb - Cs) = eta(Cs) r(Cs)",
+            "film_coefficient": "kc = kc_ref (N/N_ref)^a (dp/dp_ref)^(-b)"
+            if spec.film.name == "agitation" else f"film model '{spec.film.name}'",
+            "pellet": "eta from the pellet diffusion-reaction equation (generalised modulus)"
+            if spec.pellet != "none" else "no internal resistance (eta = 1)",
+            "reactor": "dCb/dt = -w r_obs(Cb)" if spec.reactor == "batch"
+            else "r_obs measured at the initial concentration",
+        },
+    }
+
+
+def _parameters(model: Model, est: Estimate, lin, prof, boot) -> dict[str, dict[str, Any]]:
+    spec = model.spec
+    out: dict[str, dict[str, Any]] = {}
+    for j, col in enumerate(est.names):
+        p = spec.parameters[model.column_parameter[j]]
+        entry: dict[str, Any] = {
+            "estimate": float(est.x[j]), "unit": p.unit,
+            "stderr": float(est.stderr[j]) if np.isfinite(est.stderr[j]) else None,
+            "ci95_linear": [float(lin.lower[j]), float(lin.upper[j])],
+            "vary": True, "start": float(est.x_start[j]) if est.x_start is not None else None,
+            "bounds": [p.min, p.max], "scope": p.scope, "transform": p.transform,
+            "at_bound": bool(est.at_bound[j]),
+        }
+        entry["ci95"], entry["ci_method"] = entry["ci95_linear"], "linear"
+        if prof is not None:
+            iv = prof.intervals
+            lo = float(iv.lower[j]) if iv.lower_closed[j] else None
+            hi = float(iv.upper[j]) if iv.upper_closed[j] else None
+            entry["ci95_profile"] = [lo, hi]
+            entry["ci95"], entry["ci_method"] = [lo, hi], "profile"
+        if boot is not None:
+            entry["ci95_bootstrap"] = [float(boot.intervals.lower[j]),
+                                       float(boot.intervals.upper[j])]
+        out[col] = entry
+    for name in spec.parameter_names:
+        p = spec.parameters[name]
+        if not p.vary:
+            out[name] = {"estimate": p.value, "unit": p.unit, "stderr": None, "ci95": None,
+                         "ci_method": None, "vary": False}
+    return out
+
+
+def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, *,
+              argv: Sequence[str] | None = None) -> FitResult:
+    """Fit one model to a study.
+
+    Parameters
+    ----------
+    spec : ModelSpec
+    study : Study
+    options : FitOptions
+
+    Returns
+    -------
+    FitResult
+    """
+    options = options or FitOptions()
+    options.check()
+    model = Model(spec, study)
+    problem = model.problem()
+    est = fit_problem(problem, multistart=options.multistart, seed=options.seed,
+                      max_nfev=options.max_nfev, executor=options.executor)
+    lin = linearised_intervals(est)
+    prof = None
+    if options.profile and est.converged:
+        prof = profile_intervals(problem, est, executor=options.executor)
+    boot = None
+    if options.bootstrap:
+        boot = bootstrap(problem, est, n_boot=options.bootstrap, kind=(
+            "group" if options.bootstrap_kind == "group" else "residual"), seed=options.seed,
+            progress=options.progress, executor=options.executor)
+    runs = run_table(model, est.x, thresholds=options.thresholds)
+    flags = identifiability(est)
+    warnings_ = identifiability_warnings(study, flags, runs)
+    stats = est.statistics
+    fit_block = {
+        "converged": bool(est.converged), "status": int(est.status), "message": est.message,
+        "n_obs": int(est.n_obs), "n_params": int(est.n_params), "dof": int(est.dof),
+        "sse": float(est.sse), "sigma": float(est.sigma), "loglike": float(stats.loglike),
+        "aic": float(stats.aic), "aicc": float(stats.aicc), "bic": float(stats.bic),
+        "k": int(stats.k), "nfev": int(est.nfev), "n_starts": int(est.n_starts),
+        "n_distinct_optima": int(est.n_distinct_optima), "error_model": est.error_model,
+        "error_scales": dict(zip(est.scale_names, map(float, est.scale), strict=True)),
+        "n_penalised": int(est.n_penalised), "penalty_reasons": list(est.penalty_reasons),
+        "information_criteria": "Gaussian likelihood with the error scale estimated: "
+        "-2 ln L = n [ln(2 pi SSE/n) + 1] (constant error); k = parameters + error scales",
+    }
+    if prof is not None and prof.better_optimum:
+        fit_block["message"] += "; profiling found a lower SSE than the fit (not at the minimum)"
+    pred = point_table(model, est.x, np.asarray(est.fitted))
+    obs_col = "concentration" if spec.reactor == "batch" else "rate"
+    pred.insert(2, f"observed_{obs_col}", model.y)
+    pred.insert(3, "residual", np.asarray(est.residuals))
+    extras: dict[str, Any] = {}
+    if prof is not None:
+        extras["profiles"] = {t.name: {"values": t.values.tolist(), "tau": t.tau.tolist()}
+                              for t in prof.traces}
+        extras["profile_t_crit"] = float(prof.t_crit)
+    if boot is not None:
+        extras["bootstrap"] = {"kind": boot.kind, "n": int(boot.replicates.shape[0]),
+                               "n_failed": int(boot.n_failed)}
+    extras["covariance"] = np.asarray(est.covariance).tolist()
+    return FitResult(
+        study=study.name, model=_describe(spec, study),
+        parameters=_parameters(model, est, lin, prof, boot), runs=runs, fit=fit_block,
+        correlation={"names": list(est.names), "matrix": np.asarray(est.correlation).tolist()},
+        identifiability=tuple(warnings_),
+        manifest=manifest(files=study.files, seed=options.seed, argv=argv,
+                          extra={"options": {"multistart": options.multistart,
+                                             "profile": options.profile,
+                                             "bootstrap": options.bootstrap,
+                                             "bootstrap_kind": options.bootstrap_kind}}),
+        predictions=pred, extras=extras,
+    )
+
+
+def parse_candidate(text: str, study: Study) -> ModelSpec:
+    """A candidate model written ``RATE_LAW[/FILM[/PELLET]]``, e.g. ``power/none/direct``.
+
+    Parameters the candidate needs come from the study's table; parameters it does not use
+    are left out.
+    """
+    parts = [p.strip() for p in text.split("/")]
+    if not 1 <= len(parts) <= 3 or not all(parts):
+        raise StudyError(f"candidate '{text}' must be written RATE_LAW[/FILM[/PELLET]], "
+                         "for example 'power/agitation/none'")
+    law = parts[0]
+    film = parts[1] if len(parts) > 1 else None
+    pellet = parts[2] if len(parts) > 2 else None
+    probe = ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
+                                 parameters=study.parameters, label=text, check=False)
+    needed = probe.parameter_names
+    missing = [n for n in needed if n not in study.parameters]
+    if missing:
+        raise StudyError(f"candidate '{text}' needs parameter '{missing[0]}', which the study "
+                         f"lacks; add [parameters.{missing[0]}]")
+    keep = [n for n in study.parameters if n in needed or n in ("sigma", "sigma_rel")]
+    return ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
+                                parameters=study.parameters.subset(keep), label=text)
+
+
+def compare_models(results: Sequence[FitResult], specs: Sequence[ModelSpec]
+                   ) -> list[dict[str, Any]]:
+    """Comparison rows (SSE, AICc, BIC, Akaike weights, nested tests) for fitted candidates."""
+    from kinfit.estimate.compare import compare_fits
+
+    table = compare_fits([r.extras["_estimate"] for r in results],
+                         labels=[s.label for s in specs])
+    return table

@@ -1,0 +1,274 @@
+"""Coupling of film, pellet and rate law: the observed rate at given bulk conditions.
+
+For every point the surface concentration Cs solves
+
+.. math:: k_c a_m (C_b - C_s) = \\eta(C_s)\\, r(C_s),
+
+bracketed between the equilibrium concentration and Cb. All points and parameter sets are
+solved together by a safeguarded Newton iteration (Newton steps inside a shrinking bracket,
+bisection when a step leaves it), with no Python loop over points.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from kinfit.errors import SolverError
+
+__all__ = ["ObservedRate", "PelletRate", "solve_surface", "observed_rate", "resistance_shares"]
+
+Array = NDArray[np.float64]
+
+
+@dataclass(frozen=True)
+class ObservedRate:
+    """Observed rate and the transport state at each point (all arrays of one shape).
+
+    Attributes
+    ----------
+    rate : ndarray
+        Observed rate per catalyst mass, mol/(kg s).
+    surface_concentration : ndarray
+        Cs, mol/m^3.
+    effectiveness : ndarray
+        eta at Cs.
+    thiele_modulus : ndarray
+        Generalised modulus (L = Vp/Sp normalisation) at Cs.
+    intrinsic_rate : ndarray
+        r(Cs), mol/(kg s).
+    """
+
+    rate: Array
+    surface_concentration: Array
+    effectiveness: Array
+    thiele_modulus: Array
+    intrinsic_rate: Array
+
+
+class PelletRate:
+    """eta(Cs) r(Cs) for a rate law inside a pellet, with its derivative in Cs.
+
+    Parameters
+    ----------
+    rate_law : RateLaw
+        From :mod:`kinfit.kinetics`.
+    params : mapping of str to ndarray
+        Rate-law parameter values, broadcastable to the point arrays.
+    T, C0 : ndarray
+        Temperature (K) and initial concentration (mol/m^3) at each point.
+    De : ndarray or None
+        Effective diffusivity, m^2/s; ``None`` switches the pellet off (eta = 1).
+    L : ndarray
+        Characteristic length Vp/Sp, m.
+    rho_p : float
+        Particle density, kg/m^3.
+    geometry : str
+    """
+
+    def __init__(self, rate_law, params: Mapping[str, Array], T: Array, C0: Array | None,
+                 De: Array | None, L: Array, rho_p: float, geometry: str) -> None:
+        self.law, self.p, self.T, self.C0 = rate_law, params, T, C0
+        self.De, self.L, self.rho_p, self.geometry = De, L, rho_p, geometry
+        order = rate_law.power_law_order(params)
+        self.order = None if order is None else np.asarray(order, dtype=float)
+        self.C_eq = np.asarray(rate_law.equilibrium_concentration(T, params, C0=C0), dtype=float)
+
+    def _rate(self, C: Array) -> Array:
+        return self.law.rate(C, self.T, self.p, C0=self.C0)
+
+    def __call__(self, Cs: Array, *, derivative: bool = True):
+        """Return (eta r, d(eta r)/dCs, eta, Phi, r) at the surface concentrations ``Cs``."""
+        r = self._rate(Cs)
+        if self.De is None:
+            one = np.ones_like(Cs)
+            dr = self.law.drate_dC(Cs, self.T, self.p, C0=self.C0) if derivative else None
+            return r, dr, one, np.zeros_like(Cs), r
+        from kinfit.transport import pellet
+
+        if self.order is not None:
+            n = self.order
+            rv = self.rho_p * r
+            with np.errstate(divide="ignore", invalid="ignore"):
+                phi = self.L * np.sqrt(np.maximum((n + 1.0) * 0.5 * rv / (self.De * Cs), 0.0))
+            phi = np.where(Cs > 0, phi, np.inf)
+            eta = pellet.eta_power_law(phi, n, self.geometry)
+            g = eta * r
+            dg = None
+            if derivative:
+                # d ln(eta r)/d ln Cs = n + (n-1)/2 * d ln eta/d ln Phi (Phi ~ Cs^((n-1)/2))
+                h = 1e-6
+                eta2 = pellet.eta_power_law(phi * (1.0 + h), n, self.geometry)
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    slope = np.log(eta2 / eta) / np.log1p(h)
+                    dg = np.where(Cs > 0, g * (n + 0.5 * (n - 1.0) * slope) / Cs, 0.0)
+            return g, dg, eta, phi, r
+        return self._general(Cs, r, derivative)
+
+    def _general(self, Cs: Array, r: Array, derivative: bool):
+        from kinfit.transport import pellet
+
+        rho = self.rho_p
+        T, p, C0 = self.T, self.p, self.C0
+
+        def rate_v(C: Array) -> Array:
+            return rho * self.law.rate(C, _grid(T, C), _grid_params(p, C), C0=_grid(C0, C))
+
+        def drate_v(C: Array) -> Array:
+            return rho * self.law.drate_dC(C, _grid(T, C), _grid_params(p, C), C0=_grid(C0, C))
+
+        def solve(c: Array):
+            return pellet.pellet_eta(rate_v, drate_v, c, _bcast(self.De, c), _bcast(self.L, c),
+                                     self.geometry, C_eq=_bcast(self.C_eq, c))
+
+        eta, phi = solve(Cs)
+        g = eta * r
+        dg = None
+        if derivative:
+            h = 1e-6 * np.maximum(Cs, 1e-12)
+            eta2, _ = solve(Cs + h)
+            r2 = self._rate(Cs + h)
+            dg = (eta2 * r2 - g) / h
+        return g, dg, eta, phi, r
+
+
+def _bcast(a, like):
+    return None if a is None else np.broadcast_to(np.asarray(a, dtype=float), np.shape(like))
+
+
+def _grid(a, C):
+    """Give a point array a trailing grid axis to broadcast with pellet profiles (..., n_grid)."""
+    if a is None:
+        return None
+    a = np.asarray(a, dtype=float)
+    return a[..., None] if a.ndim else a
+
+
+def _grid_params(p: Mapping[str, Array], C) -> dict[str, Array]:
+    return {k: _grid(v, C) for k, v in p.items()}
+
+
+def solve_surface(
+    Cb: Array,
+    conductance: Array,
+    g: Callable[[Array], tuple[Array, Array]],
+    *,
+    C_eq: Array | float = 0.0,
+    rtol: float = 1e-12,
+    maxiter: int = 80,
+) -> Array:
+    """Solve ``conductance (Cb - Cs) = g(Cs)`` for Cs between ``C_eq`` and ``Cb``.
+
+    Parameters
+    ----------
+    Cb : ndarray
+        Bulk concentrations, mol/m^3.
+    conductance : ndarray
+        kc a_m, m^3/(kg s); ``inf`` means no film (Cs = Cb).
+    g : callable
+        ``g(Cs) -> (value, derivative)``: the pellet-averaged rate and its Cs-derivative;
+        zero at C_eq and increasing in Cs.
+    C_eq : ndarray or float
+        Equilibrium concentration (0 for an irreversible reaction).
+
+    Returns
+    -------
+    ndarray
+        Cs, same shape as ``Cb``.
+
+    Raises
+    ------
+    SolverError
+        If some points do not converge in ``maxiter`` iterations.
+    """
+    Cb = np.asarray(Cb, dtype=float)
+    kf = np.broadcast_to(np.asarray(conductance, dtype=float), Cb.shape)
+    ceq = np.broadcast_to(np.asarray(C_eq, dtype=float), Cb.shape)
+    lo = np.minimum(ceq, Cb)
+    hi = np.maximum(ceq, Cb)
+    nofilm = ~np.isfinite(kf)
+    kf_safe = np.where(nofilm, 1.0, kf)
+    x = hi.copy() if np.all(Cb >= ceq) else 0.5 * (lo + hi)
+    # start from the series-resistance estimate at first order: Cs = Cb kf/(kf + g(Cb)/Cb)
+    gv, dg = g(Cb)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        k1 = np.where(Cb - ceq != 0, gv / (Cb - ceq), dg)
+        x = np.where(np.isfinite(k1), ceq + (Cb - ceq) * kf_safe / (kf_safe + k1), x)
+    x = np.clip(x, lo, hi)
+    active = ~nofilm & (hi > lo)
+    scale = np.maximum(np.abs(hi), 1e-300)
+    for _ in range(maxiter):
+        if not active.any():
+            break
+        gv, dg = g(x)
+        f = kf_safe * (Cb - x) - gv
+        df = -kf_safe - dg
+        # f decreases in Cs: f > 0 means the root lies above x
+        lo = np.where(active & (f > 0), x, lo)
+        hi = np.where(active & (f < 0), x, hi)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            xn = x - f / df
+        bad = ~np.isfinite(xn) | (xn <= lo) | (xn >= hi)
+        xn = np.where(bad, 0.5 * (lo + hi), xn)
+        xn = np.where(active, xn, x)
+        done = (np.abs(xn - x) <= rtol * scale) | (f == 0) | (hi - lo <= rtol * scale)
+        x = xn
+        active &= ~done
+    if active.any():
+        raise SolverError(
+            f"surface concentration did not converge at {int(active.sum())} of {Cb.size} "
+            f"points in {maxiter} iterations"
+        )
+    return np.where(nofilm, Cb, x)
+
+
+def observed_rate(
+    Cb: Array,
+    pellet_rate: PelletRate,
+    conductance: Array,
+) -> ObservedRate:
+    """Observed rate per catalyst mass at bulk concentrations ``Cb``.
+
+    Parameters
+    ----------
+    Cb : ndarray
+        Bulk concentrations, mol/m^3, shape S.
+    pellet_rate : PelletRate
+        Built on arrays broadcastable to S.
+    conductance : ndarray
+        kc a_m, m^3/(kg s), broadcastable to S (``inf``: no film).
+    """
+    Cb = np.asarray(Cb, dtype=float)
+
+    def g(c: Array):
+        val, dval, *_ = pellet_rate(c)
+        return val, dval
+
+    Cs = solve_surface(Cb, conductance, g, C_eq=pellet_rate.C_eq)
+    val, _, eta, phi, r = pellet_rate(Cs, derivative=False)
+    return ObservedRate(rate=val, surface_concentration=Cs, effectiveness=eta,
+                        thiele_modulus=phi, intrinsic_rate=r)
+
+
+def resistance_shares(obs: ObservedRate, conductance: Array, C_eq: Array | float = 0.0):
+    """Shares of film, pore and reaction in the overall resistance (DESIGN contract).
+
+    The rate is linearised at the surface, k1 = r(Cs)/(Cs - C_eq); resistances per kg are
+    film 1/(kc a_m), reaction 1/k1, pore (1/eta - 1)/k1.
+
+    Returns
+    -------
+    film, pore, reaction : ndarray
+        Fractions summing to 1.
+    """
+    Cs = obs.surface_concentration
+    with np.errstate(divide="ignore", invalid="ignore"):
+        k1 = obs.intrinsic_rate / np.maximum(Cs - C_eq, 1e-300)
+        film = np.where(np.isfinite(conductance), 1.0 / conductance, 0.0)
+        react = 1.0 / k1
+        pore = (1.0 / obs.effectiveness - 1.0) / k1
+    total = film + react + pore
+    return film / total, pore / total, react / total
