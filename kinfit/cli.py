@@ -54,7 +54,50 @@ def _cmd_simulate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _fit_options(args: argparse.Namespace):
+    from kinfit.fitting import FitOptions
+
+    return FitOptions(multistart=args.multistart, seed=args.seed, profile=not args.no_profile,
+                      bootstrap=args.bootstrap,
+                      bootstrap_kind="group" if args.bootstrap_runs else "residual",
+                      progress=not args.quiet)
+
+
+def _cmd_fit(args: argparse.Namespace) -> int:
+    from kinfit.fitting import fit
+    from kinfit.outputs import prepare_out_dir
+    from kinfit.study import load_study
+
+    study = load_study(args.study)
+    out = prepare_out_dir(args.out)
+    result = fit(study, _fit_options(args), candidates=args.compare, argv=sys.argv)
+    result.save(out)
+    print(result.report())
+    print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
+    if not result.converged:
+        print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def _fit_arguments(p: argparse.ArgumentParser) -> None:
+    _add_common(p, out=True)
+    p.add_argument("--multistart", type=int, default=0, metavar="N",
+                   help="extra starts from a Sobol design inside the bounds")
+    p.add_argument("--seed", type=int, default=None, help="seed of multistart and bootstrap")
+    p.add_argument("--no-profile", action="store_true",
+                   help="skip profile-likelihood intervals (linearised only)")
+    p.add_argument("--bootstrap", type=int, default=0, metavar="N",
+                   help="bootstrap replicates (default 0: none)")
+    p.add_argument("--bootstrap-runs", action="store_true",
+                   help="resample whole runs instead of residuals")
+    p.add_argument("--compare", nargs="+", default=None, metavar="CANDIDATE",
+                   help="candidate models RATE_LAW[/FILM[/PELLET]] to compare with the study's")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+
+
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", _cmd_fit),
     "check": ("validate a study and show what the campaign can tell", _cmd_check),
     "simulate": ("predict every run at the study's parameter values", _cmd_simulate),
 }
@@ -83,6 +126,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
     "simulate": lambda p: _add_common(p, out=True),
+    "fit": _fit_arguments,
 }
 
 

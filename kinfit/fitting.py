@@ -238,11 +238,91 @@ def parse_candidate(text: str, study: Study) -> ModelSpec:
                                 parameters=study.parameters.subset(keep), label=text)
 
 
-def compare_models(results: Sequence[FitResult], specs: Sequence[ModelSpec]
-                   ) -> list[dict[str, Any]]:
-    """Comparison rows (SSE, AICc, BIC, Akaike weights, nested tests) for fitted candidates."""
-    from kinfit.estimate.compare import compare_fits
+def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
+    """The study's own model, with the parameter table cut to what it uses.
 
-    table = compare_fits([r.extras["_estimate"] for r in results],
-                         labels=[s.label for s in specs])
-    return table
+    Parameters that neither the study's model nor any candidate uses are rejected.
+    """
+    base = ModelSpec.from_study(study, check=False)
+    used = set(base.parameter_names) | {"sigma", "sigma_rel"}
+    for text in candidates:
+        used |= set(parse_candidate(text, study).parameter_names)
+    extra = [n for n in study.parameters if n not in used]
+    if extra:
+        raise StudyError(
+            f"unknown parameter '{extra[0]}' for the model ({base.label}); the model uses "
+            f"{sorted(base.parameter_names)} (and error scales sigma, sigma_rel)"
+        )
+    keep = [n for n in study.parameters if n in base.parameter_names or
+            n in ("sigma", "sigma_rel")]
+    return ModelSpec.from_study(study, parameters=study.parameters.subset(keep))
+
+
+def fit(study: Study, options: FitOptions | None = None, *,
+        candidates: Sequence[str] | None = None, argv: Sequence[str] | None = None
+        ) -> FitResult:
+    """Fit the study's model (and candidate models, compared by AICc and BIC).
+
+    Parameters
+    ----------
+    study : Study
+    options : FitOptions
+    candidates : sequence of str, optional
+        Further models written ``RATE_LAW[/FILM[/PELLET]]``; the study's own model is always
+        the first row of the comparison.
+
+    Returns
+    -------
+    FitResult
+        The study's model, with ``comparison`` filled when candidates were given.
+    """
+    candidates = list(candidates or study.fit.get("compare", []) or [])
+    spec = main_spec(study, candidates)
+    result = fit_model(spec, study, options, argv=argv)
+    if not candidates:
+        return result
+    from dataclasses import replace
+
+    specs = [spec] + [parse_candidate(c, study) for c in candidates]
+    others = [fit_model(s, study, replace(options or FitOptions(), profile=False,
+                                          bootstrap=0), argv=argv) for s in specs[1:]]
+    rows = comparison_rows([result, *others], [s.label for s in specs],
+                           [set(s.parameter_names) for s in specs])
+    return replace(result, comparison=tuple(rows))
+
+
+def comparison_rows(results: Sequence[FitResult], labels: Sequence[str],
+                    parameter_sets: Sequence[set[str]]) -> list[dict[str, Any]]:
+    """SSE, AICc, BIC and Akaike weights (Burnham & Anderson 2002) for fits of the same data,
+    with a likelihood-ratio test against the first model when one nests the other."""
+    from scipy import stats
+
+    aicc = np.array([r.fit["aicc"] for r in results], dtype=float)
+    delta = aicc - np.min(aicc)
+    weights = np.exp(-0.5 * delta)
+    weights = weights / weights.sum()
+    rows = []
+    first = results[0]
+    for i, (r, label) in enumerate(zip(results, labels, strict=True)):
+        row = {"model": label, "sse": r.fit["sse"], "n_params": r.fit["n_params"],
+               "aic": r.fit["aic"], "aicc": r.fit["aicc"], "bic": r.fit["bic"],
+               "delta_aicc": float(delta[i]), "akaike_weight": float(weights[i]),
+               "converged": r.fit["converged"]}
+        if i > 0:
+            small, big = (r, first) if r.fit["n_params"] < first.fit["n_params"] else (first, r)
+            sets = (parameter_sets[i], parameter_sets[0])
+            nested = sets[0] <= sets[1] or sets[1] <= sets[0]
+            df = abs(big.fit["n_params"] - small.fit["n_params"])
+            if nested and df > 0:
+                lr = 2.0 * (big.fit["loglike"] - small.fit["loglike"])
+                row["likelihood_ratio"] = {"statistic": float(lr), "df": int(df),
+                                           "p_value": float(stats.chi2.sf(max(lr, 0.0), df)),
+                                           "against": labels[0]}
+                n = big.fit["n_obs"]
+                p_big = big.fit["n_params"]
+                F = ((small.fit["sse"] - big.fit["sse"]) / df) / (big.fit["sse"] / (n - p_big))
+                row["f_test"] = {"statistic": float(F), "df": [int(df), int(n - p_big)],
+                                 "p_value": float(stats.f.sf(max(F, 0.0), df, n - p_big)),
+                                 "against": labels[0]}
+        rows.append(row)
+    return rows

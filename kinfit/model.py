@@ -47,7 +47,9 @@ class ModelSpec:
         internal resistance (eta = 1).
     porosity : float or None
     molecular_diffusivity : float or None
-        Dm, m^2/s (needed for ``tortuosity``).
+        Dm, m^2/s, for ``tortuosity`` (else taken from ``fluid`` at each run's temperature).
+    fluid : Fluid or None
+        Solvent properties from the ``[fluid]`` section.
     reactor : {"batch", "differential"}
     parameters : ParameterTable
     label : str
@@ -63,6 +65,7 @@ class ModelSpec:
     parameters: ParameterTable
     porosity: float | None = None
     molecular_diffusivity: float | None = None
+    fluid: Any = None
     label: str = "model"
 
     @property
@@ -104,6 +107,13 @@ class ModelSpec:
             film_sec.setdefault("reference_speed", _geomean([r.stirrer_speed for r in study.runs]))
             film_sec.setdefault("reference_diameter",
                                 _geomean([r.particle_diameter for r in study.runs]))
+        fluid = None
+        if study.fluid:
+            from kinfit.transport.properties import make_fluid
+
+            fluid = make_fluid(**dict(study.fluid))
+            if film_name not in ("agitation", "none"):
+                film_sec.setdefault("fluid", fluid)
         film_model = make_film_model(film_name, **film_sec)
         mode = pellet or study.pellet.get("diffusivity", "direct")
         if mode not in PELLET_MODES:
@@ -116,7 +126,7 @@ class ModelSpec:
             reactor="differential" if study.kind == "rate" else "batch",
             parameters=table, porosity=study.catalyst.get("porosity"),
             molecular_diffusivity=study.pellet.get("molecular_diffusivity"),
-            label=label or f"{law_name}+{film_name}+{mode}",
+            fluid=fluid, label=label or f"{law_name}+{film_name}+{mode}",
         )
         if check:
             spec.validate()
@@ -138,9 +148,12 @@ class ModelSpec:
                 f"unknown parameter '{extra[0]}' for the model ({self.label}); the model uses "
                 f"{sorted(needed)} (and error scales {list(ERROR_SCALE_NAMES)})"
             )
-        if self.pellet == "tortuosity" and (not self.porosity or not self.molecular_diffusivity):
+        if self.pellet == "tortuosity" and (not self.porosity or not (
+                self.molecular_diffusivity or (self.fluid is not None
+                                               and self.fluid.has_diffusivity))):
             raise StudyError("pellet diffusivity 'tortuosity' needs [catalyst].porosity and "
-                             "[pellet].molecular_diffusivity")
+                             "either [pellet].molecular_diffusivity or a [fluid] with a "
+                             "diffusivity (or solute_molar_volume for Wilke-Chang)")
         if not any(self.parameters[n].vary for n in self.parameter_names):
             raise StudyError("no varying parameter: set vary = true on at least one parameter")
 
@@ -289,7 +302,9 @@ class Model:
             tau = val(values["tortuosity"])
             if np.any(~(tau > 0)):
                 raise ModelError(f"parameter 'tortuosity' must be > 0, got {float(np.min(tau)):g}")
-            De = spec.porosity * spec.molecular_diffusivity / tau
+            Dm = (spec.molecular_diffusivity if spec.molecular_diffusivity
+                  else spec.fluid.diffusivity(T))
+            De = spec.porosity * Dm / tau
         pr = PelletRate(spec.rate_law, law_p, T, C0, De, run(self.L), spec.particle_density,
                         spec.geometry)
         return pr, conductance, kc, De

@@ -213,19 +213,45 @@ def cstr_outlet(rate: Callable[[Array], Array], C_in: Array, residence_time: Arr
     C_in, residence_time, loading : ndarray
         Feed concentration (mol/m^3), residence time (s), catalyst loading (kg/m^3); broadcast.
     """
-    from scipy.optimize import elementwise
-
     C_in = np.asarray(C_in, dtype=float)
     shape = np.broadcast_shapes(C_in.shape, np.shape(residence_time), np.shape(loading),
                                 np.shape(C_eq))
-    cin = np.broadcast_to(C_in, shape)
-    lo = np.broadcast_to(np.asarray(C_eq, dtype=float), shape)
+    hi = np.broadcast_to(C_in, shape).astype(float)
+    lo = np.broadcast_to(np.asarray(C_eq, dtype=float), shape).astype(float)
 
-    def f(c):
-        return (cin - c) / residence_time - loading * rate(c)
+    def f(c: Array) -> Array:  # decreasing in c, positive at C_eq, negative at C_in
+        return (hi - c) / residence_time - loading * rate(c)
 
-    res = elementwise.find_root(f, (lo.astype(float), cin.astype(float)),
-                                tolerances={"xatol": 0.0, "xrtol": 1e-12})
-    if not np.all(res.success):
-        raise SolverError(f"CSTR outlet did not converge at {int((~res.success).sum())} points")
-    return res.x
+    return _illinois(f, lo, hi)
+
+
+def _illinois(f: Callable[[Array], Array], lo: Array, hi: Array, *, rtol: float = 1e-13,
+              maxiter: int = 200) -> Array:
+    """Vectorised Illinois (modified regula falsi) root of a function with f(lo) >= 0 >= f(hi),
+    evaluated on whole arrays every iteration (so closures over broadcast arrays stay valid)."""
+    a, b = lo.copy(), hi.copy()
+    fa, fb = f(a), f(b)
+    x = b.copy()
+    done = (fa == 0) | (fb == 0) | (b - a <= 0)
+    x = np.where(fa == 0, a, x)
+    side = np.zeros(a.shape, dtype=int)
+    for _ in range(maxiter):
+        if done.all():
+            return x
+        with np.errstate(divide="ignore", invalid="ignore"):
+            xn = np.where(fa != fb, (a * fb - b * fa) / (fb - fa), 0.5 * (a + b))
+        xn = np.where(np.isfinite(xn) & (xn > a) & (xn < b), xn, 0.5 * (a + b))
+        fx = f(xn)
+        upper = fx * fb > 0  # root between a and xn
+        b = np.where(~done & upper, xn, b)
+        fb = np.where(~done & upper, fx, fb)
+        fa = np.where(~done & upper & (side == 1), 0.5 * fa, fa)
+        a = np.where(~done & ~upper, xn, a)
+        fa = np.where(~done & ~upper, fx, fa)
+        fb = np.where(~done & ~upper & (side == -1), 0.5 * fb, fb)
+        side = np.where(upper, 1, -1)
+        newly = ~done & ((np.abs(xn - x) <= rtol * np.abs(hi)) | (fx == 0) |
+                         (b - a <= rtol * np.abs(hi)))
+        x = np.where(~done, xn, x)
+        done |= newly
+    raise SolverError(f"CSTR outlet did not converge at {int((~done).sum())} points")

@@ -133,6 +133,9 @@ class Study:
     error_model : str
     fit : dict
         Fit options from the ``[fit]`` section (seed, multistart, ...).
+    fluid : dict
+        The ``[fluid]`` section (solvent name and property values, SI), for film
+        correlations and the tortuosity form of the effective diffusivity.
     files : dict
         Input file path -> SHA-256 hex digest, for the manifest.
     raw : dict
@@ -150,6 +153,7 @@ class Study:
     parameters: ParameterTable
     error_model: str = "constant"
     fit: Mapping[str, Any] = field(default_factory=dict)
+    fluid: Mapping[str, Any] = field(default_factory=dict)
     files: Mapping[str, str] = field(default_factory=dict)
     raw: Mapping[str, Any] = field(default_factory=dict)
 
@@ -545,6 +549,8 @@ _QUANTITY_KEYS = {
     "slip_velocity": "velocity", "superficial_velocity": "velocity",
     "solute_molar_volume": "molar_volume", "solvent_molar_mass": "molar_mass",
     "association": "dimensionless", "bed_porosity": "dimensionless",
+    "molar_mass": "molar_mass", "association_factor": "dimensionless",
+    "diffusivity": "diffusivity", "diffusivity_temperature": "temperature",
 }
 
 
@@ -640,13 +646,14 @@ def load_study(path: str | Path) -> Study:
     error_model = _choice(error, "model", ("constant", "proportional", "combined"),
                           f"{path.name} [error]", "constant")
     fit = _section(doc, "fit", path, False)
+    fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))
     return Study(
         path=path, name=name, kind=kind, runs=tuple(runs), catalyst=catalyst,
         kinetics=kinetics, film=film, pellet=pellet, parameters=params,
-        error_model=error_model, fit=fit, files=files, raw=doc,
+        error_model=error_model, fit=fit, fluid=fluid, files=files, raw=doc,
     )
 
 
