@@ -96,7 +96,54 @@ def _fit_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 
+def _cmd_sample(args: argparse.Namespace) -> int:
+    from kinfit.bayes import SampleOptions, sample_study
+    from kinfit.outputs import prepare_out_dir
+    from kinfit.results import FitResult
+    from kinfit.study import load_study
+
+    study = load_study(args.study)
+    fit_dir = args.fit or args.out
+    if fit_dir is None:
+        raise StudyError("give --fit DIR (the folder of 'kinfit fit' results)")
+    fit = FitResult.load(fit_dir)
+    out = prepare_out_dir(args.out or fit_dir)
+    options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
+                            tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
+                            progress=not args.quiet)
+    post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    print(post.report())
+    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
+    if post.interrupted:
+        print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
+              file=sys.stderr)
+        return EXIT_FAILED
+    if args.require_converged and not post.converged:
+        print(f"kinfit: the chain did not converge: {post.verdict}", file=sys.stderr)
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def _sample_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("study", type=Path, help="the study file (TOML)")
+    p.add_argument("--fit", type=Path, default=None,
+                   help="folder with results.json from 'kinfit fit' (default: --out)")
+    p.add_argument("--out", type=Path, default=None,
+                   help="output folder (default: the --fit folder)")
+    p.add_argument("--walkers", type=int, default=None, help="ensemble size")
+    p.add_argument("--steps", type=int, default=20000, help="step cap (default 20000)")
+    p.add_argument("--chunk", type=int, default=500, help="steps between checkpoints")
+    p.add_argument("--tau-multiple", type=float, default=50.0,
+                   help="stop when the chain exceeds this many autocorrelation times")
+    p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
+    p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
+    p.add_argument("--require-converged", action="store_true",
+                   help="exit 1 when the chain has not converged")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "sample": ("sample the posterior from the fit's optimum (emcee)", _cmd_sample),
     "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", _cmd_fit),
     "check": ("validate a study and show what the campaign can tell", _cmd_check),
     "simulate": ("predict every run at the study's parameter values", _cmd_simulate),
@@ -127,6 +174,7 @@ def build_parser() -> argparse.ArgumentParser:
 _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
     "simulate": lambda p: _add_common(p, out=True),
     "fit": _fit_arguments,
+    "sample": _sample_arguments,
 }
 
 

@@ -96,6 +96,9 @@ class ParameterTable(Mapping[str, Parameter]):
                 f"parameter '{name}' is not in the table; parameters are {list(self._items)}"
             ) from None
 
+    def __contains__(self, name: object) -> bool:
+        return name in self._items
+
     def __iter__(self) -> Iterator[str]:
         return iter(self._items)
 

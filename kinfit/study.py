@@ -550,14 +550,16 @@ _QUANTITY_KEYS = {
     "solute_molar_volume": "molar_volume", "solvent_molar_mass": "molar_mass",
     "association": "dimensionless", "bed_porosity": "dimensionless",
     "molar_mass": "molar_mass", "association_factor": "dimensionless",
-    "diffusivity": "diffusivity", "diffusivity_temperature": "temperature",
+    "diffusivity_temperature": "temperature",
 }
+_FLUID_KEYS = {**_QUANTITY_KEYS, "diffusivity": "diffusivity"}
 
 
 def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]:
+    keys = _FLUID_KEYS if section == "fluid" else _QUANTITY_KEYS
     out = {}
     for key, value in sec.items():
-        kind = _QUANTITY_KEYS.get(key)
+        kind = keys.get(key)
         if kind is not None:
             out[key] = parse_quantity(value, kind, where=f"{path.name} [{section}].{key}")
         else:

@@ -210,12 +210,13 @@ def solve_surface(
         lo = np.where(active & (f > 0), x, lo)
         hi = np.where(active & (f < 0), x, hi)
         with np.errstate(divide="ignore", invalid="ignore"):
-            xn = x - f / df
-        bad = ~np.isfinite(xn) | (xn <= lo) | (xn >= hi)
-        xn = np.where(bad, 0.5 * (lo + hi), xn)
-        xn = np.where(active, xn, x)
-        done = (np.abs(xn - x) <= rtol * scale) | (f == 0) | (hi - lo <= rtol * scale)
-        x = xn
+            step = -f / df
+        xn = x + step
+        small = np.abs(step) <= rtol * scale
+        bad = ~small & (~np.isfinite(xn) | (xn < lo) | (xn > hi))
+        xn = np.where(bad, 0.5 * (lo + hi), np.clip(xn, lo, hi))
+        done = small | (f == 0) | (hi - lo <= rtol * scale)
+        x = np.where(active, xn, x)
         active &= ~done
     if active.any():
         raise SolverError(
