@@ -1,0 +1,1132 @@
+"""Weighted and generalised nonlinear least squares for any vectorised :class:`Problem`.
+
+The optimiser works in the internal coordinates of :class:`~kinfit.estimate.problem.Space`
+(``u = ln x`` for log parameters). Every finite-difference Jacobian is one batched ``predict``
+call (p + 1 rows forward, 2p + 1 rows central for the final covariance). Rows the predictor
+cannot compute become a large finite residual, never NaN. The proportional and combined error
+models are fitted by iteratively reweighted generalised least squares with the scales estimated
+by maximum likelihood (Carroll & Ruppert 1988, *Transformation and Weighting in Regression*,
+Chapman & Hall, ch. 2-3). Multistart uses a scrambled Sobol design screened in one batched call.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections import Counter
+from collections.abc import Iterable
+from concurrent.futures import Executor
+from dataclasses import dataclass, fields
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+from scipy.optimize import least_squares
+from scipy.stats import qmc
+
+from kinfit.errors import ConvergenceWarning, StudyError
+from kinfit.estimate.problem import PENALTY, Problem
+from kinfit.estimate.statistics import (
+    FitStatistics,
+    fit_statistics,
+    ml_error_scales,
+    relative_weights,
+)
+
+__all__ = [
+    "FIT_METHODS",
+    "Estimate",
+    "Evaluator",
+    "SolverSettings",
+    "StageResult",
+    "covariance_from_jacobian",
+    "fit_problem",
+    "jacobian_internal",
+    "solve_weighted",
+    "warn_not_converged",
+]
+
+FIT_METHODS = ("trf", "dogbox", "lm")
+_EPS = np.finfo(float).eps
+#: Two optima are the same when their SSE agree to this relative tolerance ...
+SSE_RTOL = 1e-6
+#: ... and their internal coordinates agree to this tolerance (relative to max(1, |u|)).
+PARAM_RTOL = 1e-4
+#: ... or to this fraction of their approximate standard error, whichever is larger.
+SE_FRACTION = 0.01
+#: Largest |cos| between a Jacobian column and the residuals accepted at a converged point.
+STATIONARITY_TOL = 1e-4
+#: A parameter is "unmoved" when it changed by less than this (relative, internal coordinates).
+UNMOVED_RTOL = 1e-10
+_MAX_EXPLAINED = 10  # failed rows whose exception text is captured, per evaluator
+
+
+# --------------------------------------------------------------------------------------------
+# evaluation with penalties
+# --------------------------------------------------------------------------------------------
+class Evaluator:
+    """Batched predictions in internal coordinates, with failed rows counted and explained.
+
+    Parameters
+    ----------
+    problem : Problem
+
+    Attributes
+    ----------
+    n_calls : int
+        Number of ``predict`` calls made.
+    n_penalised : int
+        Number of parameter rows whose prediction failed.
+    reasons : collections.Counter
+        Failure reason -> count.
+    """
+
+    def __init__(self, problem: Problem) -> None:
+        self.problem = problem
+        self.n_calls = 0
+        self.n_penalised = 0
+        self.reasons: Counter[str] = Counter()
+        self._explained = 0
+
+    def __call__(self, u: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.bool_]]:
+        """Predictions (m, n) and failure mask (m,) for internal rows ``u`` of shape (m, p)."""
+        x = self.problem.space.to_physical(np.atleast_2d(u))
+        with np.errstate(all="ignore"):
+            f, bad = self.problem.predict_safe(x)
+        self.n_calls += 1
+        if np.any(bad):
+            self.n_penalised += int(np.sum(bad))
+            for i in np.flatnonzero(bad):
+                self.reasons[self._explain(x[i], f[i])] += 1
+        return f, bad
+
+    def _explain(self, x: NDArray[np.float64], f: NDArray[np.float64]) -> str:
+        n_bad = int(np.sum(~np.isfinite(f)))
+        if n_bad < f.size:
+            return f"predictor returned non-finite values at {n_bad} of {f.size} observations"
+        if self._explained < _MAX_EXPLAINED:
+            self._explained += 1
+            try:
+                with np.errstate(all="ignore"):
+                    self.problem.predict(x[None, :])
+            except (ArithmeticError, ValueError, RuntimeError) as exc:
+                return f"predictor raised {type(exc).__name__}: {exc}"
+            return f"predictor returned non-finite values at {f.size} of {f.size} observations"
+        return "predictor raised an error or returned only non-finite values"
+
+    def merge(self, other: Evaluator) -> None:
+        """Add another evaluator's counts to this one."""
+        self.n_calls += other.n_calls
+        self.n_penalised += other.n_penalised
+        self.reasons.update(other.reasons)
+
+
+def _format_reasons(reasons: Counter[str]) -> tuple[str, ...]:
+    return tuple(f"{text} ({count}x)" for text, count in sorted(reasons.items()))
+
+
+# --------------------------------------------------------------------------------------------
+# Jacobians and covariance
+# --------------------------------------------------------------------------------------------
+def jacobian_internal(
+    problem: Problem,
+    evaluator: Evaluator,
+    u: NDArray[np.float64],
+    *,
+    columns: NDArray[np.int_] | None = None,
+    central: bool = False,
+) -> NDArray[np.float64] | None:
+    """Jacobian of the predictions with respect to internal coordinates, ``d f / d u``.
+
+    Uses ``problem.jacobian`` (chained through :meth:`Space.dphysical_dinternal`) when given,
+    otherwise finite differences in ONE batched ``predict`` call: p + 1 rows forward, or 2p + 1
+    rows central. Steps that would leave the bounds are taken the other way (forward) or
+    replaced by a one-sided second-order formula (central). A perturbed row that fails is
+    retried once with the opposite step; a column that still fails is set to zero.
+
+    Parameters
+    ----------
+    problem : Problem
+    evaluator : Evaluator
+    u : ndarray, shape (p,)
+        Internal point.
+    columns : ndarray of int, optional
+        Parameters to differentiate (default all).
+    central : bool
+        Central (second-order) differences instead of forward.
+
+    Returns
+    -------
+    ndarray, shape (n, len(columns)), or None when the prediction at ``u`` itself fails.
+    """
+    space = problem.space
+    p = space.n
+    cols = np.arange(p) if columns is None else np.asarray(columns, dtype=int)
+    lb, ub = space.internal_bounds()
+    if problem.jacobian is not None:
+        x = space.to_physical(u)
+        try:
+            with np.errstate(all="ignore"):
+                jac = np.asarray(problem.jacobian(x), dtype=float)
+            if jac.shape == (problem.n_obs, p) and np.all(np.isfinite(jac)):
+                return jac[:, cols] * space.dphysical_dinternal(u)[cols]
+            evaluator.reasons["analytic Jacobian non-finite or mis-shaped; used differences"] += 1
+        except (ArithmeticError, ValueError, RuntimeError) as exc:
+            evaluator.reasons[
+                f"analytic Jacobian raised {type(exc).__name__}; used differences"
+            ] += 1
+    uc = u[cols]
+    h = (_EPS ** (1 / 3) if central else _EPS**0.5) * _typical(problem, u)[cols]
+    if not central:
+        sign = np.where(uc + h > ub[cols], -1.0, 1.0)
+        steps = sign * h
+        rows = np.repeat(u[None, :], cols.size + 1, axis=0)
+        rows[1 + np.arange(cols.size), cols] += steps
+        steps = rows[1 + np.arange(cols.size), cols] - uc  # exactly representable steps
+        f, bad = evaluator(rows)
+        if bad[0]:
+            return None
+        redo = np.flatnonzero(bad[1:])
+        if redo.size:
+            rows2 = np.repeat(u[None, :], redo.size, axis=0)
+            rows2[np.arange(redo.size), cols[redo]] -= steps[redo]
+            f2, bad2 = evaluator(rows2)
+            f[1 + redo] = f2
+            steps[redo] = rows2[np.arange(redo.size), cols[redo]] - uc[redo]
+            bad[1 + redo] = bad2
+        d = (f[1:] - f[0]) / steps[:, None]
+        d[bad[1:]] = 0.0
+        return d.T
+    # central: two rows per column; one-sided second-order near a bound
+    kind = np.where(uc + h > ub[cols], -1, np.where(uc - h < lb[cols], 1, 0))
+    first = np.where(kind == -1, -h, h)
+    second = np.where(kind == 0, -h, 2.0 * np.where(kind == -1, -h, h))
+    rows = np.repeat(u[None, :], 2 * cols.size + 1, axis=0)
+    k = np.arange(cols.size)
+    rows[1 + 2 * k, cols] += first
+    rows[2 + 2 * k, cols] += second
+    hh = np.abs(rows[1 + 2 * k, cols] - uc)
+    f, bad = evaluator(rows)
+    if bad[0]:
+        return None
+    f0, f1, f2 = f[0], f[1::2], f[2::2]
+    d = np.empty((cols.size, problem.n_obs))
+    c, fw, bw = kind == 0, kind == 1, kind == -1
+    d[c] = (f1[c] - f2[c]) / (2.0 * hh[c, None])
+    d[fw] = (-3.0 * f0 + 4.0 * f1[fw] - f2[fw]) / (2.0 * hh[fw, None])
+    d[bw] = (3.0 * f0 - 4.0 * f1[bw] + f2[bw]) / (2.0 * hh[bw, None])
+    failed = bad[1::2] | bad[2::2]
+    if np.any(failed):
+        fwd = jacobian_internal(
+            _without_jacobian(problem), evaluator, u, columns=cols[failed], central=False
+        )
+        d[failed] = 0.0 if fwd is None else fwd.T
+    return d.T
+
+
+def _typical(problem: Problem, u: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Scale of each internal coordinate for difference steps.
+
+    ``max(1, |u|)`` for log parameters (``u = ln x`` has unit scale); for the others
+    ``max(|u|, 1e-3 |u0|)`` with ``u0`` the problem's start (1 when both are zero), so that a
+    parameter of size 1e-9 gets a step of its own size and one that has run to a zero bound
+    keeps a usable step.
+    """
+    space = problem.space
+    u0 = np.abs(space.to_internal(problem.x0))
+    au = np.abs(u)
+    typ = np.where(space.is_log, np.maximum(1.0, au), np.maximum(au, 1e-3 * u0))
+    return np.where(typ > 0, typ, 1.0)
+
+
+def _without_jacobian(problem: Problem) -> Problem:
+    if problem.jacobian is None:
+        return problem
+    return Problem(
+        predict=problem.predict,
+        y=problem.y,
+        space=problem.space,
+        x0=problem.x0,
+        weights=problem.weights,
+        error_model=problem.error_model,
+        groups=problem.groups,
+        labels=problem.labels,
+    )
+
+
+def covariance_from_jacobian(
+    jacobian: NDArray[np.float64], weights: NDArray[np.float64], sigma2: float
+) -> tuple[NDArray[np.float64], int, NDArray[np.float64]]:
+    """Linearised covariance ``sigma^2 (J' W J)^{-1}`` by a column-scaled SVD.
+
+    Parameters
+    ----------
+    jacobian : ndarray, shape (n, p)
+        ``d f / d x`` in the coordinates wanted for the covariance.
+    weights : ndarray, shape (n,)
+        Least-squares weights W.
+    sigma2 : float
+        Residual variance ``S / (n - p)``.
+
+    Returns
+    -------
+    covariance : ndarray, shape (p, p)
+        All NaN when ``J' W J`` is numerically singular.
+    rank : int
+        Numerical rank of the column-scaled, weighted Jacobian.
+    singular_values : ndarray, shape (p,)
+        Singular values of the column-scaled, weighted Jacobian (unit-length columns).
+
+    Notes
+    -----
+    Columns are scaled to unit length first (this does not change the covariance and keeps the
+    SVD accurate for badly scaled parameters); singular values below
+    ``max(n, p) * eps * s_max`` count as zero (common practice, as numpy's ``matrix_rank``).
+    """
+    a = np.sqrt(weights)[:, None] * jacobian
+    p = a.shape[1]
+    if not np.all(np.isfinite(a)):
+        return np.full((p, p), np.nan), 0, np.full(p, np.nan)
+    d = np.linalg.norm(a, axis=0)
+    d[d == 0] = 1.0
+    _, s, vt = np.linalg.svd(a / d, full_matrices=False)
+    tol = max(a.shape) * _EPS * (s[0] if s.size else 0.0)
+    rank = int(np.sum(s > tol))
+    if rank < p:
+        return np.full((p, p), np.nan), rank, s
+    vs = vt.T / s
+    cov = (vs @ vs.T) / np.outer(d, d) * sigma2
+    return cov, rank, s
+
+
+# --------------------------------------------------------------------------------------------
+# one weighted least-squares solve (optionally with some parameters fixed)
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class SolverSettings:
+    """Options of one least-squares solve (plain values; see :func:`fit_problem`)."""
+
+    method: str = "trf"
+    max_nfev: int | None = None
+    xtol: float = 1e-12
+    ftol: float = 1e-12
+    gtol: float = 1e-12
+    x_scale: Any = "jac"
+
+
+@dataclass(frozen=True)
+class StageResult:
+    """Outcome of :func:`solve_weighted` (internal coordinates).
+
+    ``se_internal`` holds approximate standard errors of the free coordinates from the
+    optimiser's last Jacobian (NaN for fixed ones or when singular); ``failed`` says the
+    prediction fails at ``u``; ``cosine`` is the largest |cos| between a free Jacobian column
+    and the residual vector there (0 at a stationary point).
+    """
+
+    u: NDArray[np.float64]
+    status: int
+    message: str
+    nfev: int
+    njev: int
+    active_mask: NDArray[np.int_]
+    failed: bool
+    se_internal: NDArray[np.float64]
+    cosine: float
+
+
+_MAX_RESTARTS = 5
+#: largest |cos| between a Jacobian column and the residual vector accepted as stationary
+_COSINE_TOL = 1e-6
+
+
+def _least_squares_once(
+    problem: Problem,
+    full: Any,
+    idx: NDArray[np.int_],
+    z0: NDArray[np.float64],
+    sqrtw: NDArray[np.float64],
+    lbf: NDArray[np.float64],
+    ubf: NDArray[np.float64],
+    settings: SolverSettings,
+    evaluator: Evaluator,
+    max_nfev: int | None,
+) -> tuple[Any, float, NDArray[np.float64]]:
+    """One scipy solve with residuals normalised to unit RMS at ``z0``; returns the result and
+    the largest cosine between a Jacobian column and the residual vector at the end, and the
+    approximate standard errors of the free internal coordinates (NaN when singular)."""
+    y = problem.y
+    f0, bad0 = evaluator(full(z0)[None, :])
+    rms = np.sqrt(np.mean((sqrtw * (y - f0[0])) ** 2)) if not bad0[0] else 1.0
+    norm = 1.0 / rms if np.isfinite(rms) and rms > 0 else 1.0
+    sw = sqrtw * norm
+    cap = PENALTY * max(1.0, float(np.max(np.abs(sw * y))))
+
+    def resid(f: NDArray[np.float64], bad: bool) -> NDArray[np.float64]:
+        if bad:
+            return np.full(y.size, cap)
+        return np.clip(sw * (y - f), -cap, cap)
+
+    def fun(z: NDArray[np.float64]) -> NDArray[np.float64]:
+        f, bad = evaluator(full(z)[None, :])
+        return resid(f[0], bool(bad[0]))
+
+    def jac(z: NDArray[np.float64]) -> NDArray[np.float64]:
+        d = jacobian_internal(problem, evaluator, full(z), columns=idx)
+        if d is None:
+            return np.zeros((y.size, idx.size))
+        return -sw[:, None] * d
+
+    kw: dict[str, Any] = dict(
+        jac=jac,
+        method=settings.method,
+        xtol=settings.xtol,
+        ftol=settings.ftol,
+        gtol=settings.gtol,
+        x_scale=settings.x_scale,
+        max_nfev=max_nfev,
+    )
+    if settings.method != "lm":
+        kw["bounds"] = (lbf, ubf)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        res = least_squares(fun, z0, **kw)
+    jm, r = np.asarray(res.jac), np.asarray(res.fun)
+    # a column pressed against an active bound does not count
+    zf = np.asarray(res.x, dtype=float)
+    near = (np.abs(zf - lbf) <= 1e-8 * np.maximum(1.0, np.abs(zf))) | (
+        np.abs(ubf - zf) <= 1e-8 * np.maximum(1.0, np.abs(zf))
+    )
+    free_cols = (
+        np.asarray(getattr(res, "active_mask", np.zeros(idx.size)), dtype=int) == 0
+    ) & ~near
+    denom = np.linalg.norm(jm, axis=0) * np.linalg.norm(r)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cos = np.abs(jm.T @ r) / denom
+    cos = np.where(free_cols & (denom > 0), cos, 0.0)
+    dof = max(r.size - idx.size, 1)
+    cov, _, _ = covariance_from_jacobian(jm, np.ones(r.size), float(r @ r) / dof)
+    return res, float(np.max(cos, initial=0.0)), np.sqrt(np.abs(np.diag(cov)))
+
+
+def solve_weighted(
+    problem: Problem,
+    u_start: NDArray[np.float64],
+    fit_weights: NDArray[np.float64],
+    *,
+    settings: SolverSettings,
+    evaluator: Evaluator,
+    free: NDArray[np.bool_] | None = None,
+) -> StageResult:
+    """Minimise ``sum(W_i (y_i - f_i)^2)`` over the free internal coordinates.
+
+    Parameters
+    ----------
+    problem : Problem
+    u_start : ndarray, shape (p,)
+        Internal starting point; fixed parameters keep these values.
+    fit_weights : ndarray, shape (n,)
+        Weights W (fixed during this solve).
+    settings : SolverSettings
+    evaluator : Evaluator
+        Counts predictions and failures.
+    free : ndarray of bool, shape (p,), optional
+        Which parameters vary (default all).
+
+    Returns
+    -------
+    StageResult
+
+    Notes
+    -----
+    Residuals are divided by their RMS at the start so that scipy's absolute gradient test
+    (``gtol``) is scale free. A failed row gives every residual the value
+    ``PENALTY * max(1, max|sqrt(W) y|)``; all residuals are clipped to that magnitude.
+    """
+    p = problem.n_params
+    free = np.ones(p, dtype=bool) if free is None else np.asarray(free, dtype=bool)
+    idx = np.flatnonzero(free)
+    lb, ub = problem.space.internal_bounds()
+    sqrtw = np.sqrt(fit_weights)
+    u_start = np.clip(np.asarray(u_start, dtype=float), lb, ub)
+
+    def full(z: NDArray[np.float64]) -> NDArray[np.float64]:
+        u = u_start.copy()
+        u[idx] = z
+        return u
+
+    lbf, ubf = lb[idx], ub[idx]
+    nfev = njev = 0
+    z = u_start[idx]
+    for _ in range(_MAX_RESTARTS + 1):
+        budget = None if settings.max_nfev is None else settings.max_nfev - nfev
+        if budget is not None and budget < 1:
+            break
+        res, cosine, se = _least_squares_once(
+            problem, full, idx, z, sqrtw, lbf, ubf, settings, evaluator, budget
+        )
+        nfev += int(res.nfev)
+        njev += int(res.njev) if res.njev is not None else 0
+        z = np.asarray(res.x, dtype=float)
+        # scipy's gradient test is absolute; accept it only when the gradient is also small
+        # relative to the residual (MINPACK's cosine test), else restart with renormalised
+        # residuals from where it stopped
+        if res.status != 1 or cosine <= _COSINE_TOL or (budget is not None and res.nfev >= budget):
+            break
+    u = full(z)
+    f_end, bad_end = evaluator(u[None, :])
+    active = np.zeros(p, dtype=int)
+    active[idx] = getattr(res, "active_mask", np.zeros(idx.size, dtype=int))
+    se_full = np.full(p, np.nan)
+    se_full[idx] = se
+    return StageResult(
+        u=u,
+        status=int(res.status),
+        message=str(res.message),
+        nfev=nfev,
+        njev=njev,
+        active_mask=active,
+        failed=bool(bad_end[0]),
+        se_internal=se_full,
+        cosine=cosine,
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# one start: iteratively reweighted generalised least squares
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Run:
+    u_start: NDArray[np.float64]
+    u: NDArray[np.float64]
+    fit_weights: NDArray[np.float64]
+    status: int
+    message: str
+    nfev: int
+    njev: int
+    active_mask: NDArray[np.int_]
+    cycles: int
+    irls_converged: bool
+    failed: bool
+    objective: float
+    sse_user: float
+    se_internal: NDArray[np.float64]
+    cosine: float
+    evaluator: Evaluator
+
+
+def _objective(
+    problem: Problem, f: NDArray[np.float64], fit_weights: NDArray[np.float64]
+) -> float:
+    """Criterion used to rank optima: weighted SSE (constant model) or -2 ln L (others)."""
+    em = problem.error_model
+    if em.kind == "constant":
+        return float(np.sum(fit_weights * (problem.y - f) ** 2))
+    sc = ml_error_scales(em, problem.y, f, problem.weights)
+    ll = em.loglike(
+        problem.y,
+        f,
+        s_abs=sc.get("sigma", 1.0),
+        s_rel=sc.get("sigma_rel", 1.0),
+        weights=problem.weights,
+    )
+    return float(-2.0 * ll)
+
+
+def _fit_from_start(task: tuple[Problem, NDArray[np.float64], SolverSettings, int, float]) -> _Run:
+    """Fit from one internal start (module level so that process executors can pickle it)."""
+    problem, u_start, settings, irls_max, irls_tol = task
+    ev = Evaluator(problem)
+    em = problem.error_model
+    w = problem.w
+    weights = w.copy()
+    u = np.asarray(u_start, dtype=float)
+    nfev = njev = cycles = 0
+    irls_ok = True
+    while True:
+        st = solve_weighted(problem, u, weights, settings=settings, evaluator=ev)
+        nfev, njev, cycles = nfev + st.nfev, njev + st.njev, cycles + 1
+        if em.kind == "constant" or st.failed:
+            break
+        f, _ = ev(st.u[None, :])
+        scales = ml_error_scales(em, problem.y, f[0], problem.weights)
+        new_weights = relative_weights(em, f[0], scales, problem.weights)
+        change = float(np.max(np.abs(st.u - u) / np.maximum(1.0, np.abs(u))))
+        if cycles > 1 and change <= irls_tol:
+            break
+        if cycles >= irls_max:
+            irls_ok = False
+            break
+        u, weights = st.u, new_weights
+    f, bad = ev(st.u[None, :])
+    failed = bool(bad[0])
+    obj = np.inf if failed else _objective(problem, f[0], weights)
+    sse_user = np.inf if failed else float(np.sum(w * (problem.y - f[0]) ** 2))
+    return _Run(
+        u_start=np.asarray(u_start, dtype=float),
+        u=st.u,
+        fit_weights=weights,
+        status=st.status,
+        message=st.message,
+        nfev=nfev,
+        njev=njev,
+        active_mask=st.active_mask,
+        cycles=cycles,
+        irls_converged=irls_ok,
+        failed=failed,
+        objective=obj,
+        sse_user=sse_user,
+        se_internal=st.se_internal,
+        cosine=st.cosine,
+        evaluator=ev,
+    )
+
+
+def _distinct_optima(runs: list[_Run]) -> list[_Run]:
+    """One representative per distinct optimum, best first."""
+    reps: list[_Run] = []
+    for r in sorted(runs, key=lambda q: q.objective):
+        for q in reps:
+            same_sse = abs(r.sse_user - q.sse_user) <= SSE_RTOL * max(
+                abs(r.sse_user), abs(q.sse_user), 1e-300
+            )
+            tol = np.maximum(
+                PARAM_RTOL * np.maximum(1.0, np.abs(q.u)),
+                SE_FRACTION * np.nan_to_num(q.se_internal),
+            )
+            same_x = np.all(np.abs(r.u - q.u) <= tol)
+            if same_sse and same_x:
+                break
+        else:
+            reps.append(r)
+    return reps
+
+
+def _sobol_starts(
+    problem: Problem, u0: NDArray[np.float64], n: int, seed: Any, halfwidth: Any
+) -> NDArray[np.float64]:
+    """``n`` scrambled Sobol points in the internal box (bounds, or ``u0 +- halfwidth``)."""
+    space = problem.space
+    lb, ub = space.internal_bounds()
+    if halfwidth is None:
+        hw = np.where(space.is_log, np.log(10.0), np.maximum(1.0, np.abs(u0)))
+    else:
+        hw = np.broadcast_to(np.asarray(halfwidth, dtype=float), u0.shape)
+    lo = np.where(np.isfinite(lb), lb, np.minimum(u0 - hw, ub - 2 * hw))
+    hi = np.where(np.isfinite(ub), ub, np.maximum(u0 + hw, lo + 2 * hw))
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    engine = qmc.Sobol(d=space.n, scramble=True, rng=rng)
+    pts = engine.random_base2(int(np.ceil(np.log2(max(n, 1)))))[:n]
+    return lo + pts * (hi - lo)
+
+
+# --------------------------------------------------------------------------------------------
+# the result
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True, slots=True)
+class Estimate:
+    """Immutable outcome of :func:`fit_problem` (numpy arrays are read-only).
+
+    Attributes
+    ----------
+    names : tuple of str
+        Parameter names, in column order.
+    transforms : tuple of str
+        ``"none"`` or ``"log"`` per parameter (as in the problem's :class:`Space`).
+    x : ndarray, shape (p,)
+        Estimates, physical units.
+    x_internal : ndarray, shape (p,)
+        Estimates in internal (optimiser) coordinates.
+    x_start : ndarray, shape (p,)
+        Physical start of the run that gave the best optimum.
+    converged : bool
+        The optimiser met a convergence test, the final point is stationary (every free
+        Jacobian column is nearly orthogonal to the weighted residuals, |cos| <=
+        ``STATIONARITY_TOL``), the reweighting cycles settled, and the final point is not a
+        failed prediction. (An exact fit, weighted residual norm below 1e-10 of the data's,
+        counts as stationary.)
+    status : int
+        scipy ``least_squares`` status of the final solve (1-4 converged, 0 evaluation limit).
+    message : str
+        Optimiser message, with kinfit's notes appended.
+    method : str
+        ``"trf"``, ``"dogbox"`` or ``"lm"``.
+    nfev, njev : int
+        Function and Jacobian evaluations of the best run (all reweighting cycles).
+    n_obs, n_params, dof : int
+        n, p and n - p.
+    observed, fitted, residuals : ndarray, shape (n,)
+        y, f(x) and y - f(x).
+    fit_weights : ndarray, shape (n,)
+        Weights W of the final least-squares stage (the user's weights for the constant model).
+    sse : float
+        ``sum(W r^2)``, the weighted residual sum of squares that was minimised.
+    jacobian : ndarray, shape (n, p)
+        ``d f / d x`` at the estimate, physical units (central differences or analytic).
+    covariance, correlation : ndarray, shape (p, p)
+        Linearised ``sigma^2 (J' W J)^{-1}`` and its correlation matrix (NaN when singular).
+    stderr : ndarray, shape (p,)
+        Square roots of the covariance diagonal.
+    sigma : float
+        ``sqrt(sse / dof)``: residual standard deviation (constant model) or dof-corrected
+        leading error scale.
+    error_model : str
+        ``"constant"``, ``"proportional"`` or ``"combined"``.
+    scale_names : tuple of str
+        Names of the error-scale parameters.
+    scale, scale_ml : ndarray, shape (len(scale_names),)
+        Error scales, dof-corrected and maximum likelihood.
+    statistics : FitStatistics
+        SSE, sigma, ln L, AIC, AICc, BIC (see :mod:`kinfit.estimate.statistics`).
+    rank : int
+        Numerical rank of the weighted Jacobian.
+    n_starts : int
+        Starts refined by the optimiser (the given start plus the chosen design points).
+    n_screened : int
+        Design points evaluated in the screening call.
+    n_distinct_optima : int
+        Distinct optima among the refined starts that ended at a computable point.
+    optima_sse : ndarray
+        ``sum(w r^2)`` (the user's weights) of each distinct optimum, best first.
+    n_penalised : int
+        Predictions that failed during the whole fit (screening, every start, Jacobians).
+    penalty_reasons : tuple of str
+        Distinct failure reasons with counts.
+    at_bound, unmoved : ndarray of bool, shape (p,)
+        Parameter on (or within tolerance of) a bound; parameter that did not move from its
+        start (relative change below ``UNMOVED_RTOL``).
+    irls_cycles : int
+        Weighted least-squares stages of the best run (1 for the constant model).
+    seed : int or None
+        Seed of the multistart design.
+    """
+
+    names: tuple[str, ...]
+    transforms: tuple[str, ...]
+    x: NDArray[np.float64]
+    x_internal: NDArray[np.float64]
+    x_start: NDArray[np.float64]
+    converged: bool
+    status: int
+    message: str
+    method: str
+    nfev: int
+    njev: int
+    n_obs: int
+    n_params: int
+    dof: int
+    observed: NDArray[np.float64]
+    fitted: NDArray[np.float64]
+    residuals: NDArray[np.float64]
+    fit_weights: NDArray[np.float64]
+    sse: float
+    jacobian: NDArray[np.float64]
+    covariance: NDArray[np.float64]
+    stderr: NDArray[np.float64]
+    correlation: NDArray[np.float64]
+    sigma: float
+    error_model: str
+    scale_names: tuple[str, ...]
+    scale: NDArray[np.float64]
+    scale_ml: NDArray[np.float64]
+    statistics: FitStatistics
+    rank: int
+    n_starts: int
+    n_screened: int
+    n_distinct_optima: int
+    optima_sse: NDArray[np.float64]
+    n_penalised: int
+    penalty_reasons: tuple[str, ...]
+    at_bound: NDArray[np.bool_]
+    unmoved: NDArray[np.bool_]
+    irls_cycles: int
+    seed: int | None
+
+    def __post_init__(self) -> None:
+        for f in fields(self):
+            v = getattr(self, f.name)
+            if isinstance(v, np.ndarray):
+                v = v.copy()
+                v.setflags(write=False)
+                object.__setattr__(self, f.name, v)
+
+    @property
+    def aic(self) -> float:
+        """Akaike information criterion (see :class:`FitStatistics`)."""
+        return self.statistics.aic
+
+    @property
+    def aicc(self) -> float:
+        """Small-sample corrected AIC."""
+        return self.statistics.aicc
+
+    @property
+    def bic(self) -> float:
+        """Bayesian (Schwarz) information criterion."""
+        return self.statistics.bic
+
+    @property
+    def loglike(self) -> float:
+        """Maximised Gaussian log-likelihood."""
+        return self.statistics.loglike
+
+    def value(self, name: str) -> float:
+        """Estimate of parameter ``name`` (physical units)."""
+        return float(self.x[self._index(name)])
+
+    def _index(self, name: str) -> int:
+        if name not in self.names:
+            raise StudyError(f"no parameter named '{name}'; the fit has {list(self.names)}")
+        return self.names.index(name)
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per parameter: estimate, stderr, start, at_bound, unmoved."""
+        return pd.DataFrame(
+            {
+                "estimate": self.x,
+                "stderr": self.stderr,
+                "start": self.x_start,
+                "at_bound": self.at_bound,
+                "unmoved": self.unmoved,
+            },
+            index=pd.Index(self.names, name="parameter"),
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """Every field as plain Python types (lists, floats, ints, str, bool, None)."""
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            out[f.name] = _plain(getattr(self, f.name))
+        return out
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, FitStatistics):
+        return v.to_dict()
+    if isinstance(v, np.ndarray):
+        return v.tolist()
+    if isinstance(v, np.generic):
+        return v.item()
+    if isinstance(v, tuple):
+        return [_plain(q) for q in v]
+    return v
+
+
+# --------------------------------------------------------------------------------------------
+# the engine
+# --------------------------------------------------------------------------------------------
+def _check(ok: bool, name: str, expected: str, got: Any) -> None:
+    if not ok:
+        raise StudyError(
+            f"The '{name}' option of fit_problem() must be {expected}. Got {got!r} instead."
+        )
+
+
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int | np.integer) and not isinstance(v, bool)
+
+
+def warn_not_converged(
+    solver: str, status: int, message: str, remedy: str, *, stacklevel: int = 3
+) -> None:
+    """Emit the one :class:`ConvergenceWarning` form: solver, status, message and remedy."""
+    warnings.warn(
+        f"{solver} did not converge (status {status}): {message}. {remedy}",
+        ConvergenceWarning,
+        stacklevel=stacklevel,
+    )
+
+
+def fit_problem(
+    problem: Problem,
+    *,
+    method: str = "trf",
+    multistart: int = 0,
+    seed: int | np.random.Generator | None = None,
+    max_nfev: int | None = None,
+    xtol: float = 1e-12,
+    ftol: float = 1e-12,
+    gtol: float = 1e-12,
+    x_scale: str | float = "jac",
+    n_refine: int | None = None,
+    box_halfwidth: float | NDArray[np.float64] | None = None,
+    irls_max_iter: int = 30,
+    irls_tol: float = 1e-8,
+    executor: Executor | None = None,
+    warn: bool = True,
+) -> Estimate:
+    """Fit a vectorised problem by (generalised) nonlinear least squares.
+
+    Parameters
+    ----------
+    problem : Problem
+        Predictor, data, parameter space, start, weights and error model.
+    method : {"trf", "dogbox", "lm"}
+        scipy ``least_squares`` method; ``"lm"`` only when no parameter has a finite internal
+        bound.
+    multistart : int
+        Number of scrambled Sobol points (``scipy.stats.qmc.Sobol``) drawn in the internal box;
+        0 fits from ``problem.x0`` only. All points are screened in one batched ``predict``
+        call by their weighted SSE; the best ``n_refine`` are refined besides ``x0``.
+    seed : int or numpy.random.Generator, optional
+        Seeds the Sobol scrambling (record it for reproducibility).
+    max_nfev : int, optional
+        Evaluation limit of each least-squares stage (scipy's default when None).
+    xtol, ftol, gtol : float
+        scipy tolerances (the residuals are normalised to unit RMS at each stage start, so
+        ``gtol`` is scale free).
+    x_scale : "jac" or float
+        scipy's variable scaling.
+    n_refine : int, optional
+        Design points refined (default ``max(1, ceil(multistart / 4))``).
+    box_halfwidth : float or ndarray, optional
+        Half-width of the internal box on sides without a finite bound. Default: ``ln 10`` (a
+        decade each way) for log parameters, ``max(1, |x0|)`` for the others.
+    irls_max_iter : int
+        Most reweighting cycles (proportional and combined error models).
+    irls_tol : float
+        Reweighting stops when no internal coordinate changes by more than
+        ``irls_tol * max(1, |u|)`` between cycles.
+    executor : concurrent.futures.Executor, optional
+        Runs the refinements of different starts in parallel; the result does not depend on it.
+    warn : bool
+        Emit :class:`~kinfit.errors.ConvergenceWarning` when the fit did not converge.
+
+    Returns
+    -------
+    Estimate
+
+    Raises
+    ------
+    StudyError
+        For an invalid option or a start that maps to an infinite internal coordinate.
+
+    Notes
+    -----
+    Constant error model: ordinary or weighted least squares, ``sigma^2 = S/(n-p)``.
+    Proportional and combined: iteratively reweighted generalised least squares (Carroll &
+    Ruppert 1988, ch. 2): cycle 1 is weighted LS with the user's weights; each further cycle
+    fixes ``W_i = w_i / v_i(f(x_prev))`` from the ML scales (:func:`ml_error_scales`) and
+    refits, warm-started. The linearised covariance is ``S/(n-p) (J' W J)^{-1}`` in every case
+    (Bates & Watts 1988, ch. 2), with ``J`` from central differences (2p + 1 rows) or the
+    analytic Jacobian.
+
+    Examples
+    --------
+    >>> from kinfit.estimate.problem import Problem, Space
+    >>> t = np.linspace(0.0, 4.0, 9)
+    >>> def predict(x):
+    ...     return x[:, :1] * np.exp(-x[:, 1:2] * t)
+    >>> y = predict(np.array([[2.0, 0.7]]))[0] + 0.01 * np.sin(7 * t)
+    >>> space = Space(("a", "k"), np.zeros(2), np.full(2, np.inf), ("log", "log"))
+    >>> est = fit_problem(Problem(predict, y, space, np.array([1.0, 1.0])))
+    >>> est.converged, np.round(est.x, 2).tolist()
+    (True, [2.0, 0.7])
+    """
+    _check(
+        isinstance(problem, Problem),
+        "problem",
+        "a kinfit.estimate.problem.Problem",
+        type(problem).__name__,
+    )
+    _check(method in FIT_METHODS, "method", f"a str among {set(FIT_METHODS)}", method)
+    _check(_is_int(multistart) and multistart >= 0, "multistart", "an int >= 0", multistart)
+    _check(
+        max_nfev is None or (_is_int(max_nfev) and max_nfev >= 1),
+        "max_nfev",
+        "None or an int >= 1",
+        max_nfev,
+    )
+    for name, tol in (("xtol", xtol), ("ftol", ftol), ("gtol", gtol), ("irls_tol", irls_tol)):
+        _check(isinstance(tol, float | int) and 0 <= tol < 1, name, "a float in [0, 1)", tol)
+    _check(
+        _is_int(irls_max_iter) and irls_max_iter >= 1,
+        "irls_max_iter",
+        "an int >= 1",
+        irls_max_iter,
+    )
+    _check(
+        n_refine is None or (_is_int(n_refine) and n_refine >= 1),
+        "n_refine",
+        "None or an int >= 1",
+        n_refine,
+    )
+    _check(
+        seed is None or _is_int(seed) or isinstance(seed, np.random.Generator),
+        "seed",
+        "None, an int or a numpy.random.Generator",
+        seed,
+    )
+    space = problem.space
+    lb, ub = space.internal_bounds()
+    if method == "lm" and (np.any(np.isfinite(lb)) or np.any(np.isfinite(ub))):
+        finite = [
+            n
+            for n, a, b in zip(space.names, lb, ub, strict=True)
+            if np.isfinite(a) or np.isfinite(b)
+        ]
+        raise StudyError(
+            f"The 'method' option of fit_problem() is 'lm', which cannot honour bounds, but "
+            f"parameters {finite} have finite bounds; use method 'trf' or remove the bounds."
+        )
+    u0 = space.to_internal(problem.x0)
+    if not np.all(np.isfinite(u0)):
+        bad = [n for n, v in zip(space.names, u0, strict=True) if not np.isfinite(v)]
+        raise StudyError(
+            f"parameters {bad}: a log-transformed parameter cannot start at 0; give a positive "
+            "starting value"
+        )
+    settings = SolverSettings(method, max_nfev, float(xtol), float(ftol), float(gtol), x_scale)
+    screen = Evaluator(problem)
+    starts = [u0]
+    n_screened = 0
+    if multistart > 0:
+        design = _sobol_starts(problem, u0, multistart, seed, box_halfwidth)
+        f, failed = screen(design)
+        n_screened = design.shape[0]
+        score = np.where(failed, np.inf, np.sum(problem.w * (problem.y - f) ** 2, axis=1))
+        score = np.where(np.isfinite(score), score, np.inf)
+        keep = n_refine if n_refine is not None else max(1, int(np.ceil(multistart / 4)))
+        order = np.argsort(score, kind="stable")[:keep]
+        starts += [design[i] for i in order if np.isfinite(score[i])] or [design[order[0]]]
+    tasks = [(problem, s, settings, irls_max_iter, float(irls_tol)) for s in starts]
+    mapper: Iterable[_Run] = (
+        executor.map(_fit_from_start, tasks) if executor else map(_fit_from_start, tasks)
+    )
+    runs = list(mapper)
+    for r in runs:
+        screen.merge(r.evaluator)
+    ok = [r for r in runs if not r.failed]
+    best = min(ok or runs, key=lambda r: r.objective)
+    reps = _distinct_optima(ok)
+    seed_out = int(seed) if isinstance(seed, int | np.integer) else None
+    est = _finalise(problem, best, settings, screen, reps, len(starts), n_screened, seed_out)
+    if warn and not est.converged:
+        warn_not_converged(
+            f"least squares ({method})",
+            est.status,
+            est.message,
+            "Try another start, multistart > 0, a larger max_nfev, or check that the data "
+            "determine every parameter.",
+        )
+    return est
+
+
+def _finalise(
+    problem: Problem,
+    best: _Run,
+    settings: SolverSettings,
+    ev: Evaluator,
+    reps: list[_Run],
+    n_starts: int,
+    n_screened: int,
+    seed: int | None,
+) -> Estimate:
+    space = problem.space
+    p, n = problem.n_params, problem.n_obs
+    u = best.u
+    x = space.to_physical(u)
+    f_rows, bad = ev(u[None, :])
+    f = f_rows[0]
+    notes = []
+    if not best.irls_converged:
+        notes.append("the reweighting cycles did not settle")
+    jac = None if bad[0] else jacobian_internal(problem, ev, u, central=True)
+    if jac is None:
+        notes.append("the prediction fails at the final point, so no covariance is available")
+        jac_phys = np.full((n, p), np.nan)
+    else:
+        jac_phys = jac / space.dphysical_dinternal(u)
+    w_fit = best.fit_weights
+    stats = fit_statistics(
+        problem.y,
+        f,
+        n_params=p,
+        error_model=problem.error_model,
+        weights=problem.weights,
+        fit_weights=w_fit,
+    )
+    cov, rank, _ = covariance_from_jacobian(jac_phys, w_fit, stats.sigma**2)
+    if rank < p and jac is not None:
+        notes.append(f"the weighted Jacobian has rank {rank} < {p}: the covariance is singular")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        se = np.sqrt(np.diag(cov))
+        corr = cov / np.outer(se, se)
+    em = problem.error_model
+    if bad[0]:
+        scale_ml = np.full(len(em.scale_names), np.nan)
+        scale = scale_ml
+    else:
+        sc = ml_error_scales(em, problem.y, f, problem.weights)
+        scale_ml = np.array([sc[k] for k in em.scale_names])
+        sd = em.sigma(
+            f, s_abs=sc.get("sigma", 1.0), s_rel=sc.get("sigma_rel", 1.0), weights=problem.weights
+        )
+        factor = (
+            np.sqrt(np.sum(((problem.y - f) / sd) ** 2) / stats.dof) if stats.dof > 0 else np.nan
+        )
+        scale = scale_ml * factor
+    lb, ub = space.internal_bounds()
+    tol = 1e-8 * np.maximum(1.0, np.abs(u))
+    at_bound = (best.active_mask != 0) | (np.abs(u - lb) <= tol) | (np.abs(ub - u) <= tol)
+    unmoved = np.abs(u - best.u_start) <= UNMOVED_RTOL * np.maximum(1.0, np.abs(best.u_start))
+    sw = np.sqrt(w_fit)
+    # an (almost) exact fit leaves residuals of rounding size, whose direction means nothing
+    exact_fit = bool(
+        np.linalg.norm(sw * (problem.y - f)) <= 1e-10 * np.linalg.norm(sw * problem.y)
+    )
+    stationary = best.cosine <= STATIONARITY_TOL or exact_fit
+    converged = (
+        best.status > 0 and best.irls_converged and not best.failed and not bad[0] and stationary
+    )
+    if best.status <= 0:
+        notes.append("the evaluation limit was reached" if best.status == 0 else "improper input")
+    elif not stationary and not bad[0]:
+        where = " next to a region where the predictor fails" if ev.n_penalised else ""
+        notes.append(
+            f"the optimiser stalled{where}: the gradient is not small there (largest cosine "
+            f"between a Jacobian column and the residuals {best.cosine:.2g} > {STATIONARITY_TOL:g})"
+        )
+    message = best.message + ("; " + "; ".join(notes) if notes else "")
+    return Estimate(
+        names=tuple(space.names),
+        transforms=tuple(space.transform),
+        x=x,
+        x_internal=u,
+        x_start=space.to_physical(best.u_start),
+        converged=bool(converged),
+        status=best.status,
+        message=message,
+        method=settings.method,
+        nfev=best.nfev,
+        njev=best.njev,
+        n_obs=n,
+        n_params=p,
+        dof=n - p,
+        observed=problem.y,
+        fitted=f,
+        residuals=problem.y - f,
+        fit_weights=w_fit,
+        sse=stats.sse,
+        jacobian=jac_phys,
+        covariance=cov,
+        stderr=se,
+        correlation=corr,
+        sigma=stats.sigma,
+        error_model=em.kind,
+        scale_names=tuple(em.scale_names),
+        scale=scale,
+        scale_ml=scale_ml,
+        statistics=stats,
+        rank=rank,
+        n_starts=n_starts,
+        n_screened=n_screened,
+        n_distinct_optima=len(reps),
+        optima_sse=np.array([r.sse_user for r in reps]),
+        n_penalised=ev.n_penalised,
+        penalty_reasons=_format_reasons(ev.reasons),
+        at_bound=at_bound,
+        unmoved=unmoved,
+        irls_cycles=best.cycles,
+        seed=seed,
+    )

@@ -1,0 +1,835 @@
+"""Uncertainty of a least-squares estimate: linearised, profile-likelihood and bootstrap
+intervals, and identifiability flags as plain numbers (no chemistry words here; the chemistry
+layer translates them).
+
+References
+----------
+Bates, D. M. & Watts, D. G. (1988). *Nonlinear Regression Analysis and Its Applications*.
+Wiley. Ch. 2 (linearised inference) and ch. 6 (profile t).
+Davison, A. C. & Hinkley, D. V. (1997). *Bootstrap Methods and their Application*. Cambridge
+University Press, ch. 6 (resampling residuals; from memory).
+Belsley, D. A., Kuh, E. & Welsch, R. E. (1980). *Regression Diagnostics*. Wiley, ch. 3
+(condition indexes of the column-scaled design; from memory).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping, Sequence
+from concurrent.futures import Executor
+from dataclasses import dataclass, fields
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+from scipy.optimize import brentq
+from scipy.stats import t as student_t
+from tqdm.auto import tqdm
+
+from kinfit.errors import StudyError
+from kinfit.estimate.least_squares import (
+    Estimate,
+    Evaluator,
+    SolverSettings,
+    fit_problem,
+    solve_weighted,
+)
+from kinfit.estimate.problem import Problem
+
+__all__ = [
+    "BootstrapResult",
+    "Identifiability",
+    "Intervals",
+    "ProfileResult",
+    "ProfileTrace",
+    "bootstrap",
+    "identifiability",
+    "linearised_intervals",
+    "profile_intervals",
+]
+
+BOOTSTRAP_KINDS = ("residual", "group")
+
+
+def _readonly(obj: Any) -> None:
+    for f in fields(obj):
+        v = getattr(obj, f.name)
+        if isinstance(v, np.ndarray):
+            v = v.copy()
+            v.setflags(write=False)
+            object.__setattr__(obj, f.name, v)
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, np.ndarray):
+        return v.tolist()
+    if isinstance(v, np.generic):
+        return v.item()
+    if isinstance(v, tuple | list):
+        return [_plain(q) for q in v]
+    if hasattr(v, "to_dict"):
+        return v.to_dict()
+    return v
+
+
+def _to_dict(obj: Any) -> dict[str, Any]:
+    return {f.name: _plain(getattr(obj, f.name)) for f in fields(obj)}
+
+
+def _check_level(level: float, func: str) -> None:
+    if not (isinstance(level, float | int) and 0 < level < 1):
+        raise StudyError(
+            f"The 'level' option of {func}() must be a float in (0, 1). Got {level!r} instead."
+        )
+
+
+# --------------------------------------------------------------------------------------------
+# intervals
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Intervals:
+    """Confidence intervals, one per parameter (physical units).
+
+    Attributes
+    ----------
+    names : tuple of str
+    estimate, lower, upper : ndarray, shape (p,)
+    level : float
+        Coverage, e.g. 0.95.
+    method : str
+        ``"linearised"``, ``"profile"`` or ``"bootstrap-residual"`` / ``"bootstrap-group"``.
+    lower_closed, upper_closed : ndarray of bool, shape (p,)
+        False where the interval is open-ended: the profile did not reach the critical value
+        within the bounds (the end is then the bound, possibly infinite).
+    notes : tuple of str
+        Plain statements about open ends, failed profile points and the like.
+    """
+
+    names: tuple[str, ...]
+    estimate: NDArray[np.float64]
+    lower: NDArray[np.float64]
+    upper: NDArray[np.float64]
+    level: float
+    method: str
+    lower_closed: NDArray[np.bool_]
+    upper_closed: NDArray[np.bool_]
+    notes: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        _readonly(self)
+
+    def interval(self, name: str) -> tuple[float, float]:
+        """``(lower, upper)`` of parameter ``name``."""
+        if name not in self.names:
+            raise StudyError(
+                f"no parameter named '{name}'; the intervals cover {list(self.names)}"
+            )
+        i = self.names.index(name)
+        return float(self.lower[i]), float(self.upper[i])
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per parameter."""
+        return pd.DataFrame(
+            {
+                "estimate": self.estimate,
+                "lower": self.lower,
+                "upper": self.upper,
+                "lower_closed": self.lower_closed,
+                "upper_closed": self.upper_closed,
+            },
+            index=pd.Index(self.names, name="parameter"),
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types."""
+        return _to_dict(self)
+
+
+def linearised_intervals(estimate: Estimate, *, level: float = 0.95) -> Intervals:
+    """Marginal intervals ``x_j +- t_{n-p, (1+level)/2} se_j`` (Bates & Watts 1988, ch. 2).
+
+    Parameters
+    ----------
+    estimate : Estimate
+    level : float
+        Coverage in (0, 1).
+
+    Returns
+    -------
+    Intervals
+        Symmetric in physical units; ``method = "linearised"``.
+
+    Examples
+    --------
+    >>> from kinfit.estimate.problem import Problem, Space
+    >>> from kinfit.estimate.least_squares import fit_problem
+    >>> x = np.arange(6.0)
+    >>> y = np.array([0.1, 1.9, 4.2, 5.8, 8.1, 9.9])
+    >>> space = Space(("b0", "b1"), np.full(2, -np.inf), np.full(2, np.inf), ("none", "none"))
+    >>> est = fit_problem(Problem(lambda b: b[:, :1] + b[:, 1:] * x, y, space, np.zeros(2)))
+    >>> np.round(linearised_intervals(est).interval("b1"), 3).tolist()
+    [1.867, 2.088]
+    """
+    _check_level(level, "linearised_intervals")
+    tc = float(student_t.ppf(0.5 + level / 2, estimate.dof)) if estimate.dof > 0 else np.inf
+    half = tc * estimate.stderr
+    return Intervals(
+        names=estimate.names,
+        estimate=estimate.x,
+        lower=estimate.x - half,
+        upper=estimate.x + half,
+        level=float(level),
+        method="linearised",
+        lower_closed=np.isfinite(half),
+        upper_closed=np.isfinite(half),
+        notes=()
+        if np.all(np.isfinite(half))
+        else ("singular covariance: some intervals are undefined",),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# profile t
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ProfileTrace:
+    """Profile of one parameter.
+
+    Attributes
+    ----------
+    name : str
+    values : ndarray, shape (k,)
+        Fixed values of the profiled parameter (physical), sorted.
+    tau : ndarray, shape (k,)
+        Profile t: ``sign(v - x_hat) sqrt(S~(v) - S_hat) / s``.
+    sse : ndarray, shape (k,)
+        Re-minimised weighted SSE ``S~(v)``.
+    others : ndarray, shape (k, p)
+        All parameters at each profile point (physical).
+    """
+
+    name: str
+    values: NDArray[np.float64]
+    tau: NDArray[np.float64]
+    sse: NDArray[np.float64]
+    others: NDArray[np.float64]
+
+    def __post_init__(self) -> None:
+        _readonly(self)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types."""
+        return _to_dict(self)
+
+
+@dataclass(frozen=True)
+class ProfileResult:
+    """Profile-likelihood intervals and the traces behind them.
+
+    Attributes
+    ----------
+    intervals : Intervals
+        ``method = "profile"``.
+    traces : tuple of ProfileTrace
+    t_crit : float
+        ``t_{n-p, (1+level)/2}``.
+    sse_min : float
+        Lowest weighted SSE met while profiling (below the estimate's SSE when the profile found
+        a better optimum; see ``better_optimum``).
+    better_optimum : bool
+        A profile point had a lower SSE than the estimate: the fit was not at the minimum.
+    """
+
+    intervals: Intervals
+    traces: tuple[ProfileTrace, ...]
+    t_crit: float
+    sse_min: float
+    better_optimum: bool
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types."""
+        return _to_dict(self)
+
+
+@dataclass(frozen=True)
+class _SideResult:
+    end: float  # physical end of the interval on this side
+    closed: bool
+    note: str | None
+    values: list[float]
+    tau: list[float]
+    sse: list[float]
+    others: list[NDArray[np.float64]]
+    sse_min: float
+
+
+def _profile_side(
+    task: tuple[Problem, Estimate, int, int, float, int, SolverSettings],
+) -> _SideResult:
+    """Walk the profile of parameter ``j`` in direction ``d`` until |tau| passes ``t_crit``."""
+    problem, est, j, d, tc, max_steps, settings = task
+    space = problem.space
+    name = space.names[j]
+    u_hat = np.asarray(est.x_internal, dtype=float)
+    w_fit = np.asarray(est.fit_weights, dtype=float)
+    s_hat, s = est.sse, est.sigma
+    lb, ub = space.internal_bounds()
+    bound = ub[j] if d > 0 else lb[j]
+    free = np.ones(space.n, dtype=bool)
+    free[j] = False
+    ev = Evaluator(problem)
+
+    def inner(v: float, warm: NDArray[np.float64]) -> tuple[float, NDArray[np.float64], bool]:
+        u = warm.copy()
+        u[j] = v
+        if free.any():
+            st = solve_weighted(problem, u, w_fit, settings=settings, evaluator=ev, free=free)
+            u = st.u
+        f, bad = ev(u[None, :])
+        if bad[0]:
+            return np.inf, u, True
+        return float(np.sum(w_fit * (problem.y - f[0]) ** 2)), u, False
+
+    def tau_of(sse: float, v: float) -> float:
+        return float(np.sign(v - u_hat[j]) * np.sqrt(max(sse - s_hat, 0.0)) / s)
+
+    dxdu = space.dphysical_dinternal(u_hat)[j]
+    se_u = est.stderr[j] / dxdu if np.isfinite(est.stderr[j]) and est.stderr[j] > 0 else np.nan
+    if not np.isfinite(se_u) or se_u <= 0:
+        se_u = 0.1 * max(1.0, abs(u_hat[j]))
+    step = se_u * tc / 3.0
+    v_prev, tau_prev, warm = u_hat[j], 0.0, u_hat.copy()
+    values: list[float] = []
+    taus: list[float] = []
+    sses: list[float] = []
+    others: list[NDArray[np.float64]] = []
+    sse_min = s_hat
+    for _ in range(max_steps):
+        v = v_prev + d * step
+        hit = (d > 0 and v >= bound) or (d < 0 and v <= bound)
+        if hit:
+            if not np.isfinite(bound):
+                hit = False
+            else:
+                v = float(bound)
+        sse, u, failed = inner(v, warm)
+        if failed:
+            return _SideResult(
+                _phys(space, j, v_prev),
+                False,
+                f"'{name}': the prediction fails beyond {_phys(space, j, v_prev):.6g}; "
+                "the interval is cut there",
+                values, taus, sses, others, sse_min,
+            )  # fmt: skip
+        sse_min = min(sse_min, sse)
+        tau = tau_of(sse, v)
+        values.append(v)
+        taus.append(tau)
+        sses.append(sse)
+        others.append(u)
+        if abs(tau) >= tc:
+            # bracket [v_prev, v]: solve |tau| = t_crit, warm-started from the inside point
+            warm_in = warm.copy()
+
+            def g(vv: float, warm_in: NDArray[np.float64] = warm_in) -> float:
+                return abs(tau_of(inner(vv, warm_in)[0], vv)) - tc
+
+            lo, hi = (v_prev, v) if d > 0 else (v, v_prev)
+            root = brentq(g, lo, hi, xtol=1e-12 * max(1.0, abs(v)), rtol=1e-12, maxiter=100)
+            return _SideResult(
+                _phys(space, j, root), True, None, values, taus, sses, others, sse_min
+            )
+        if hit:
+            return _SideResult(
+                float(space.lower[j] if d < 0 else space.upper[j]),
+                False,
+                f"'{name}': the profile does not reach t = {tc:.4g} within the bound "
+                f"{_phys(space, j, v):.6g} (|t| = {abs(tau):.3g} there): open-ended interval",
+                values, taus, sses, others, sse_min,
+            )  # fmt: skip
+        gain = abs(tau) - abs(tau_prev)
+        dv = abs(v - v_prev)
+        if gain > 1e-12:
+            target = (tc - abs(tau)) / (gain / dv) * 1.2
+            step = float(np.clip(target, 0.25 * dv, 4.0 * dv))
+        else:
+            step = 2.0 * dv
+        v_prev, tau_prev, warm = v, tau, u
+    end = space.lower[j] if d < 0 else space.upper[j]
+    if np.isfinite(bound):
+        end = _phys(space, j, v_prev)
+    return _SideResult(
+        float(end),
+        False,
+        f"'{name}': the profile does not reach t = {tc:.4g} after {max_steps} steps "
+        f"(|t| = {abs(tau_prev):.3g} at {_phys(space, j, v_prev):.6g}): open-ended interval",
+        values, taus, sses, others, sse_min,
+    )  # fmt: skip
+
+
+def _phys(space: Any, j: int, v: float) -> float:
+    return float(np.exp(v)) if space.is_log[j] else float(v)
+
+
+def profile_intervals(
+    problem: Problem,
+    estimate: Estimate,
+    *,
+    names: Sequence[str] | None = None,
+    level: float = 0.95,
+    max_steps: int = 40,
+    xtol: float = 1e-12,
+    ftol: float = 1e-12,
+    executor: Executor | None = None,
+) -> ProfileResult:
+    """Profile-t intervals (Bates & Watts 1988, ch. 6), re-minimising the other parameters.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem that produced ``estimate``.
+    estimate : Estimate
+    names : sequence of str, optional
+        Parameters to profile (default all).
+    level : float
+        Coverage in (0, 1).
+    max_steps : int
+        Most profile points per side before the interval is declared open.
+    xtol, ftol : float
+        Tolerances of the inner (conditional) fits.
+    executor : concurrent.futures.Executor, optional
+        Runs the 2 x len(names) profile sides in parallel; results do not depend on it.
+
+    Returns
+    -------
+    ProfileResult
+
+    Notes
+    -----
+    The weights are held at the estimate's final ``fit_weights``, ``S_hat = estimate.sse`` and
+    ``s = estimate.sigma``. For parameter j the profile t is
+
+    .. math:: \\tau(v) = \\operatorname{sign}(v - \\hat\\theta_j)\\sqrt{\\tilde S(v) - \\hat S}/s,
+
+    with :math:`\\tilde S` minimised over the others (each point warm-started from the previous
+    one; every inner Jacobian is one batched predict call). The interval is
+    :math:`|\\tau| \\le t_{n-p,(1+level)/2}`, located by Brent's method between the two profile
+    points that bracket it. Steps go in internal coordinates, starting at ``t se / 3`` and
+    adapted from the local slope of tau. A side that meets a finite bound first is
+    open-ended at that bound; a side that never reaches the critical value within
+    ``max_steps`` is open-ended at the bound (possibly infinite).
+    """
+    _check_level(level, "profile_intervals")
+    if not (isinstance(max_steps, int) and max_steps >= 1):
+        raise StudyError(
+            f"The 'max_steps' option of profile_intervals() must be an int >= 1. Got {max_steps!r} instead."
+        )
+    all_names = tuple(problem.space.names)
+    if tuple(estimate.names) != all_names:
+        raise StudyError(
+            f"profile_intervals(): the estimate has parameters {list(estimate.names)} but the "
+            f"problem has {list(all_names)}; pass the problem that was fitted"
+        )
+    chosen = list(all_names) if names is None else list(names)
+    unknown = [n for n in chosen if n not in all_names]
+    if unknown:
+        raise StudyError(
+            f"profile_intervals(): unknown parameters {unknown}; choose from {list(all_names)}"
+        )
+    if estimate.dof <= 0:
+        raise StudyError("profile_intervals(): no residual degrees of freedom (n <= p); add data")
+    tc = float(student_t.ppf(0.5 + level / 2, estimate.dof))
+    settings = SolverSettings(method="trf", xtol=xtol, ftol=ftol, gtol=1e-12)
+    tasks = [
+        (problem, estimate, all_names.index(n), d, tc, max_steps, settings)
+        for n in chosen
+        for d in (-1, 1)
+    ]
+    mapper: Iterable[_SideResult] = (
+        executor.map(_profile_side, tasks) if executor else map(_profile_side, tasks)
+    )
+    sides = list(mapper)
+    idx = [all_names.index(n) for n in chosen]
+    lower, upper, lo_c, up_c, notes, traces = [], [], [], [], [], []
+    sse_min = estimate.sse
+    for k, j in enumerate(idx):
+        left, right = sides[2 * k], sides[2 * k + 1]
+        lower.append(left.end)
+        upper.append(right.end)
+        lo_c.append(left.closed)
+        up_c.append(right.closed)
+        notes += [q.note for q in (left, right) if q.note]
+        sse_min = min(sse_min, left.sse_min, right.sse_min)
+        tau = np.array(left.tau[::-1] + [0.0] + right.tau)
+        sse = np.array(left.sse[::-1] + [estimate.sse] + right.sse)
+        oth = np.array(left.others[::-1] + [np.asarray(estimate.x_internal)] + right.others)
+        traces.append(
+            ProfileTrace(
+                name=all_names[j],
+                values=problem.space.to_physical(oth)[:, j],
+                tau=tau,
+                sse=sse,
+                others=problem.space.to_physical(oth),
+            )
+        )
+    better = sse_min < estimate.sse * (1 - 1e-9) - 1e-300
+    if better:
+        notes.append(
+            f"a profile point reached a lower SSE ({sse_min:.10g} < {estimate.sse:.10g}): the "
+            "estimate is not the least-squares minimum; refit (e.g. with multistart)"
+        )
+    ests = np.asarray(estimate.x)[idx]
+    return ProfileResult(
+        intervals=Intervals(
+            names=tuple(chosen),
+            estimate=ests,
+            lower=np.array(lower),
+            upper=np.array(upper),
+            level=float(level),
+            method="profile",
+            lower_closed=np.array(lo_c),
+            upper_closed=np.array(up_c),
+            notes=tuple(notes),
+        ),
+        traces=tuple(traces),
+        t_crit=tc,
+        sse_min=float(sse_min),
+        better_optimum=bool(better),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# bootstrap
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class BootstrapResult:
+    """Bootstrap replicates and percentile intervals.
+
+    Attributes
+    ----------
+    intervals : Intervals
+        Percentile intervals from the converged replicates.
+    replicates : ndarray, shape (n_boot, p)
+        Estimates of every replicate (physical); rows of failed replicates hold NaN.
+    converged : ndarray of bool, shape (n_boot,)
+    kind : str
+        ``"residual"`` or ``"group"``.
+    seed : int or None
+    n_failed : int
+        Replicates that did not converge (left out of the intervals).
+    """
+
+    intervals: Intervals
+    replicates: NDArray[np.float64]
+    converged: NDArray[np.bool_]
+    kind: str
+    seed: int | None
+    n_failed: int
+
+    def __post_init__(self) -> None:
+        _readonly(self)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types."""
+        return _to_dict(self)
+
+
+class _Subset:
+    """Picklable predictor (or Jacobian) restricted to observation indices."""
+
+    def __init__(self, func: Any, idx: NDArray[np.int_], jacobian: bool = False) -> None:
+        self.func, self.idx, self.jacobian = func, idx, jacobian
+
+    def __call__(self, x: NDArray[np.float64]) -> NDArray[np.float64]:
+        out = np.asarray(self.func(x))
+        return out[self.idx] if self.jacobian else out[:, self.idx]
+
+
+def _bootstrap_one(task: tuple[Problem, dict[str, Any]]) -> tuple[NDArray[np.float64], bool]:
+    problem, options = task
+    est = fit_problem(problem, warn=False, **options)
+    return np.asarray(est.x, dtype=float), bool(est.converged)
+
+
+def bootstrap(
+    problem: Problem,
+    estimate: Estimate,
+    *,
+    n_boot: int = 200,
+    kind: str = "residual",
+    seed: int | None = None,
+    level: float = 0.95,
+    progress: bool = True,
+    executor: Executor | None = None,
+    fit_options: Mapping[str, Any] | None = None,
+) -> BootstrapResult:
+    """Residual or whole-group bootstrap of a least-squares estimate.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem that produced ``estimate``.
+    estimate : Estimate
+    n_boot : int
+        Number of replicates.
+    kind : {"residual", "group"}
+        ``"residual"``: ``y* = f_hat + e*/sqrt(W)`` with ``e*`` drawn with replacement from the
+        centred weighted residuals ``sqrt(W) r`` inflated by ``sqrt(n/(n-p))`` (Davison &
+        Hinkley 1997, ch. 6). ``"group"``: whole groups (``problem.groups``, e.g. runs) drawn
+        with replacement, all their observations kept.
+    seed : int, optional
+        Seeds the one Generator that draws every resample, before any fit runs, so the result
+        does not depend on the executor.
+    level : float
+        Coverage of the percentile intervals.
+    progress : bool
+        Show a tqdm progress bar.
+    executor : concurrent.futures.Executor, optional
+        Runs the refits in parallel.
+    fit_options : mapping, optional
+        Extra keyword options for :func:`fit_problem` (e.g. tolerances); each replicate starts
+        from the estimate.
+
+    Returns
+    -------
+    BootstrapResult
+    """
+    _check_level(level, "bootstrap")
+    if not (isinstance(n_boot, int) and n_boot >= 2):
+        raise StudyError(
+            f"The 'n_boot' option of bootstrap() must be an int >= 2. Got {n_boot!r} instead."
+        )
+    if kind not in BOOTSTRAP_KINDS:
+        raise StudyError(
+            f"The 'kind' option of bootstrap() must be a str among {set(BOOTSTRAP_KINDS)}. Got {kind!r} instead."
+        )
+    if kind == "group" and problem.groups is None:
+        raise StudyError(
+            "bootstrap(kind='group') needs problem.groups (the run of each observation); none given"
+        )
+    rng = np.random.default_rng(seed)
+    n = problem.n_obs
+    f_hat = np.asarray(estimate.fitted, dtype=float)
+    options = dict(fit_options or {})
+    tasks: list[tuple[Problem, dict[str, Any]]] = []
+    if kind == "residual":
+        sw = np.sqrt(np.asarray(estimate.fit_weights, dtype=float))
+        e = sw * np.asarray(estimate.residuals, dtype=float)
+        e = (e - e.mean()) * np.sqrt(n / max(estimate.dof, 1))
+        for _ in range(n_boot):
+            y_star = f_hat + rng.choice(e, size=n, replace=True) / sw
+            tasks.append((_replace(problem, y=y_star, x0=estimate.x), options))
+    else:
+        groups = np.asarray(problem.groups)
+        labels = np.unique(groups)
+        members = [np.flatnonzero(groups == g) for g in labels]
+        for _ in range(n_boot):
+            pick = rng.integers(0, labels.size, size=labels.size)
+            idx = np.concatenate([members[i] for i in pick])
+            new_groups = np.concatenate([np.full(members[i].size, k) for k, i in enumerate(pick)])
+            tasks.append(
+                (
+                    Problem(
+                        predict=_Subset(problem.predict, idx),
+                        y=problem.y[idx],
+                        space=problem.space,
+                        x0=np.asarray(estimate.x),
+                        weights=None if problem.weights is None else problem.weights[idx],
+                        error_model=problem.error_model,
+                        jacobian=None
+                        if problem.jacobian is None
+                        else _Subset(problem.jacobian, idx, True),
+                        groups=new_groups,
+                    ),
+                    options,
+                )
+            )
+    mapper = executor.map(_bootstrap_one, tasks) if executor else map(_bootstrap_one, tasks)
+    out = list(tqdm(mapper, total=n_boot, disable=not progress, desc=f"bootstrap ({kind})"))
+    reps = np.array([x for x, _ in out])
+    ok = np.array([c for _, c in out], dtype=bool)
+    reps = np.where(ok[:, None], reps, np.nan)
+    good = reps[ok]
+    a = (1 - level) / 2
+    if good.shape[0] >= 2:
+        lo, hi = np.quantile(good, [a, 1 - a], axis=0)
+    else:
+        lo = hi = np.full(estimate.n_params, np.nan)
+    n_failed = int(np.sum(~ok))
+    notes = (
+        (f"{n_failed} of {n_boot} replicates did not converge and are left out",)
+        if n_failed
+        else ()
+    )
+    return BootstrapResult(
+        intervals=Intervals(
+            names=estimate.names,
+            estimate=estimate.x,
+            lower=lo,
+            upper=hi,
+            level=float(level),
+            method=f"bootstrap-{kind}",
+            lower_closed=np.isfinite(lo),
+            upper_closed=np.isfinite(hi),
+            notes=notes,
+        ),
+        replicates=reps,
+        converged=ok,
+        kind=kind,
+        seed=seed,
+        n_failed=n_failed,
+    )
+
+
+def _replace(problem: Problem, **changes: Any) -> Problem:
+    kw = {f.name: getattr(problem, f.name) for f in fields(problem)}
+    kw.update(changes)
+    return Problem(**kw)
+
+
+# --------------------------------------------------------------------------------------------
+# identifiability flags
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Identifiability:
+    """Numerical identifiability flags of an estimate (no interpretation attached).
+
+    Attributes
+    ----------
+    names : tuple of str
+    high_correlations : tuple of (str, str, float)
+        Pairs with ``|correlation| > correlation_threshold``, strongest first.
+    correlation_threshold : float
+    singular_values : ndarray, shape (p,)
+        Of the weighted Jacobian in relative coordinates (``d f / d ln x`` for log parameters,
+        ``d f / d (x/c)`` with ``c = max(|x|, stderr)`` otherwise), columns scaled to unit
+        length, descending.
+    condition_number : float
+        Of the corresponding information matrix (``(s_max/s_min)^2``; ``inf`` if singular).
+    condition_threshold : float
+    near_singular : bool
+        ``condition_number > condition_threshold`` (or rank deficient).
+    weakest_direction : tuple of (str, float)
+        Right singular vector of the smallest singular value, in relative coordinates (unit
+        length, sign fixed so that the largest entry is positive), entries with
+        ``|coefficient| >= 0.05`` in decreasing order: the combination the data pin down least.
+    weakest_direction_text : str
+        The same as text, e.g. ``"+0.71*ln(a) -0.71*ln(b)"`` or ``"+1.00*c/0.25"``.
+    at_bound, unmoved : tuple of str
+        Parameters on a bound; parameters that did not move from their start.
+    undetermined : tuple of str
+        Parameters whose standard error is not finite.
+    relative_stderr : ndarray, shape (p,)
+        ``stderr / |x|`` (inf for x = 0).
+    """
+
+    names: tuple[str, ...]
+    high_correlations: tuple[tuple[str, str, float], ...]
+    correlation_threshold: float
+    singular_values: NDArray[np.float64]
+    condition_number: float
+    condition_threshold: float
+    near_singular: bool
+    weakest_direction: tuple[tuple[str, float], ...]
+    weakest_direction_text: str
+    at_bound: tuple[str, ...]
+    unmoved: tuple[str, ...]
+    undetermined: tuple[str, ...]
+    relative_stderr: NDArray[np.float64]
+
+    def __post_init__(self) -> None:
+        _readonly(self)
+
+    @property
+    def ok(self) -> bool:
+        """No flag raised."""
+        return not (
+            self.high_correlations
+            or self.near_singular
+            or self.at_bound
+            or self.unmoved
+            or self.undetermined
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain Python types."""
+        return _to_dict(self)
+
+
+def identifiability(
+    estimate: Estimate,
+    *,
+    correlation_threshold: float = 0.95,
+    condition_threshold: float = 1e6,
+) -> Identifiability:
+    """Flags for parameters or combinations that the data do not pin down.
+
+    Parameters
+    ----------
+    estimate : Estimate
+    correlation_threshold : float
+        Pairs with ``|r|`` above this are listed (common practice: 0.95).
+    condition_threshold : float
+        Information-matrix condition number above which it counts as near-singular. The default
+        1e6 is a condition index of 1e3 on the unit-column-scaled Jacobian; Belsley, Kuh &
+        Welsch (1980) read indexes above 30 as moderate and above 100 as strong dependence.
+
+    Returns
+    -------
+    Identifiability
+    """
+    names = estimate.names
+    p = len(names)
+    corr = np.asarray(estimate.correlation)
+    pairs = []
+    for i in range(p):
+        for k in range(i + 1, p):
+            r = corr[i, k]
+            if np.isfinite(r) and abs(r) > correlation_threshold:
+                pairs.append((names[i], names[k], float(r)))
+    pairs.sort(key=lambda q: -abs(q[2]))
+    x = np.asarray(estimate.x)
+    se = np.asarray(estimate.stderr)
+    is_log = np.array([t == "log" for t in estimate.transforms])
+    # relative coordinates: ln x for log parameters; x / c otherwise, c = max(|x|, se) (1 if 0)
+    c = np.maximum(np.abs(x), np.nan_to_num(se, nan=0.0, posinf=0.0))
+    c = np.where(c > 0, c, 1.0)
+    scale = np.where(is_log, x, c)
+    a = np.sqrt(np.asarray(estimate.fit_weights))[:, None] * np.asarray(estimate.jacobian) * scale
+    if np.all(np.isfinite(a)):
+        d = np.linalg.norm(a, axis=0)
+        d[d == 0] = 1.0
+        _, s, vt = np.linalg.svd(a / d, full_matrices=False)
+        tol = max(a.shape) * np.finfo(float).eps * s[0]
+        cond = float((s[0] / s[-1]) ** 2) if s[-1] > tol else np.inf
+        v = vt[-1] / d  # back to relative coordinates
+        v = v / np.linalg.norm(v)
+        v = v * np.sign(v[np.argmax(np.abs(v))])
+    else:
+        s, cond, v = np.full(p, np.nan), np.inf, np.full(p, np.nan)
+    order = np.argsort(-np.abs(np.nan_to_num(v)))
+    direction = tuple(
+        (names[i], float(v[i])) for i in order if np.isfinite(v[i]) and abs(v[i]) >= 0.05
+    )
+    text = " ".join(
+        f"{coef:+.2f}*"
+        + (f"ln({nm})" if is_log[names.index(nm)] else f"{nm}/{c[names.index(nm)]:.3g}")
+        for nm, coef in direction
+    )
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel = np.where(x != 0, se / np.abs(x), np.inf)
+    return Identifiability(
+        names=names,
+        high_correlations=tuple(pairs),
+        correlation_threshold=float(correlation_threshold),
+        singular_values=s,
+        condition_number=cond,
+        condition_threshold=float(condition_threshold),
+        near_singular=bool(cond > condition_threshold),
+        weakest_direction=direction,
+        weakest_direction_text=text,
+        at_bound=tuple(n for n, b in zip(names, estimate.at_bound, strict=True) if b),
+        unmoved=tuple(n for n, b in zip(names, estimate.unmoved, strict=True) if b),
+        undetermined=tuple(n for n, q in zip(names, se, strict=True) if not np.isfinite(q)),
+        relative_stderr=rel,
+    )
