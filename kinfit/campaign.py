@@ -11,11 +11,12 @@ __all__ = ["campaign_summary", "TEST_MEANING"]
 TEST_MEANING = {
     "stirrer_speed": "film resistance (says nothing about pore diffusion)",
     "particle_diameter": "film and pore resistance together (same stirrer speed)",
-    "catalyst_loading": "gas-liquid or film supply per catalyst mass (Koros & Nowak 1967 style)",
+    "catalyst_loading": "gas-liquid supply (the rate per catalyst mass is unchanged when the "
+                        "dissolved-gas supply does not limit; common practice)",
 }
 
 _LABEL = {
-    "temperature": ("T", "K", 1.0), "stirrer_speed": ("N", "rpm", 60.0),
+    "temperature": ("T", "degC", 1.0), "stirrer_speed": ("N", "rpm", 60.0),
     "particle_diameter": ("dp", "um", 1e6), "catalyst_loading": ("w", "g/L", 1.0),
     "initial_concentration": ("C0", "mol/L", 1e-3),
 }
@@ -23,6 +24,8 @@ _LABEL = {
 
 def _fmt(factor: str, value: float) -> str:
     sym, unit, scale = _LABEL[factor]
+    if factor == "temperature":
+        return f"{sym} {value - 273.15:.4g} degC"
     return f"{sym} {value * scale:.4g} {unit}"
 
 
