@@ -76,17 +76,15 @@ def make_model(tmp: Path, *, order: float = 1.5, runs: str = RUNS, study: str = 
 
 def test_eta_does_not_change_with_stirrer_speed(tmp_path):
     # common practice: agitation changes the film, not the pellet; at the same surface
-    # concentration eta is the same (here: S1 vs S2, same particles)
+    # concentration eta is the same at both speeds (S1 300 rpm vs S2 1200 rpm, same particles)
     m = make_model(tmp_path)
-    st, kc = m.point_states(m.x0, np.full(m.n_obs, 400.0))
-    i1, i2 = np.flatnonzero(m.run_index == 0)[0], np.flatnonzero(m.run_index == 1)[0]
-    assert kc[i2] > kc[i1]  # common practice: kc rises with stirrer speed
-    # same Cs -> same eta: evaluate at the surface concentration of S1 for both
-    st2, _ = m.point_states(m.x0, np.where(m.run_index == 1, st.surface_concentration[i1],
-                                           400.0))
-    s2 = m.point_states(m.x0, np.full(m.n_obs, st.surface_concentration[i1]))[0]
-    assert s2.effectiveness[i1] == pytest.approx(s2.effectiveness[i2], rel=1e-12)
-    del st2
+    pr, _, kc, _ = m._pieces(m.expand(m.x0[None, :]), m.run_index)
+    cs = np.full((1, m.n_obs), 400.0)
+    eta = pr(cs, derivative=False)[2][0]
+    s1, s2 = m.run_index == 0, m.run_index == 1
+    np.testing.assert_allclose(eta[s1], eta[s2], rtol=1e-13)
+    kc = np.broadcast_to(kc, (1, m.n_obs))[0]
+    assert np.all(kc[s2] > kc[s1])  # common practice: kc rises with stirrer speed
 
 
 def test_modulus_proportional_to_diameter_and_area_inverse(tmp_path):
