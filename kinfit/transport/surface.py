@@ -74,7 +74,7 @@ class PelletRate:
         self.law, self.p, self.T, self.C0 = rate_law, params, T, C0
         self.De, self.L, self.rho_p, self.geometry = De, L, rho_p, geometry
         order = rate_law.power_law_order(params)
-        self.order = None if order is None else np.asarray(order, dtype=float)
+        self.order = None if order is None else _fewest_orders(np.asarray(order, dtype=float))
         self.C_eq = np.asarray(rate_law.equilibrium_concentration(T, params, C0=C0), dtype=float)
 
     def _rate(self, C: Array) -> Array:
@@ -95,16 +95,14 @@ class PelletRate:
             with np.errstate(divide="ignore", invalid="ignore"):
                 phi = self.L * np.sqrt(np.maximum((n + 1.0) * 0.5 * rv / (self.De * Cs), 0.0))
             phi = np.where(Cs > 0, phi, np.inf)
-            eta = pellet.eta_power_law(phi, n, self.geometry)
+            if not derivative:
+                eta = pellet.eta_power_law(phi, n, self.geometry)
+                return eta * r, None, eta, phi, r
+            eta, slope = pellet.eta_power_law(phi, n, self.geometry, return_slope=True)
             g = eta * r
-            dg = None
-            if derivative:
-                # d ln(eta r)/d ln Cs = n + (n-1)/2 * d ln eta/d ln Phi (Phi ~ Cs^((n-1)/2))
-                h = 1e-6
-                eta2 = pellet.eta_power_law(phi * (1.0 + h), n, self.geometry)
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    slope = np.log(eta2 / eta) / np.log1p(h)
-                    dg = np.where(Cs > 0, g * (n + 0.5 * (n - 1.0) * slope) / Cs, 0.0)
+            # d ln(eta r)/d ln Cs = n + (n-1)/2 * d ln eta/d ln Phi, since Phi ~ Cs^((n-1)/2)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                dg = np.where(Cs > 0, g * (n + 0.5 * (n - 1.0) * slope) / Cs, 0.0)
             return g, dg, eta, phi, r
         return self._general(Cs, r, derivative)
 
@@ -133,6 +131,17 @@ class PelletRate:
             r2 = self._rate(Cs + h)
             dg = (eta2 * r2 - g) / h
         return g, dg, eta, phi, r
+
+
+def _fewest_orders(order: Array) -> Array:
+    """Collapse an order array that is constant over every axis but the first (one shared
+    order per parameter set) to shape (m, 1, ...): the tabulated pellet then builds its
+    interpolant once per distinct order instead of once per run."""
+    if order.ndim >= 2:
+        first = order.reshape(order.shape[0], -1)[:, :1]
+        if np.all(order.reshape(order.shape[0], -1) == first):
+            return first.reshape((order.shape[0],) + (1,) * (order.ndim - 1))
+    return order
 
 
 def _bcast(a, like):
