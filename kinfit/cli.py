@@ -142,7 +142,88 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
+def _cmd_run(args: argparse.Namespace) -> int:
+    """The whole job: check, fit, sample (short chain), diagnose, report."""
+    import time
+
+    from kinfit.bayes import SampleOptions, sample_study
+    from kinfit.campaign import campaign_summary
+    from kinfit.diagnostics import diagnose
+    from kinfit.fitting import FitOptions, fit
+    from kinfit.outputs import prepare_out_dir
+    from kinfit.report import build_report
+    from kinfit.study import load_study
+
+    t0 = time.perf_counter()
+
+    def step(text: str) -> None:
+        print(f"[{time.perf_counter() - t0:6.1f} s] {text}", flush=True)
+
+    step(f"checking {args.study}")
+    study = load_study(args.study)
+    print(campaign_summary(study))
+    out = prepare_out_dir(args.out)
+    step("fitting all runs jointly (least squares, profile-likelihood intervals)")
+    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
+                                   progress=not args.quiet), argv=sys.argv)
+    result.save(out)
+    print(result.report())
+    code = EXIT_OK if result.converged else EXIT_FAILED
+    if args.steps > 0:
+        step(f"sampling the posterior ({args.steps} steps at most)")
+        post, _ = sample_study(study, result, out, SampleOptions(
+            max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
+            progress=not args.quiet), argv=sys.argv)
+        print(post.report())
+    step("diagnosing transport run by run")
+    diagnosis = diagnose(study, result, posterior_dir=out)
+    diagnosis.save(out)
+    print(diagnosis.report())
+    step("writing the report")
+    written = build_report(study, out, out, argv=sys.argv)
+    step(f"done: {written.html}")
+    return code
+
+
+def _run_arguments(p: argparse.ArgumentParser) -> None:
+    _add_common(p, out=True)
+    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
+    p.add_argument("--multistart", type=int, default=0, metavar="N",
+                   help="extra least-squares starts")
+    p.add_argument("--steps", type=int, default=2000,
+                   help="posterior step cap (0: no sampling; default 2000, a short chain)")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+
+
+def _cmd_diagnose(args: argparse.Namespace) -> int:
+    from kinfit.diagnostics import run_diagnose_command
+
+    return run_diagnose_command(args)
+
+
+def _cmd_criteria(args: argparse.Namespace) -> int:
+    from kinfit.calculator import run_criteria_command
+
+    return run_criteria_command(args)
+
+
+def _diagnose_arguments(p: argparse.ArgumentParser) -> None:
+    from kinfit.diagnostics import add_diagnose_arguments
+
+    add_diagnose_arguments(p)
+
+
+def _criteria_arguments(p: argparse.ArgumentParser) -> None:
+    from kinfit.calculator import add_criteria_arguments
+
+    add_criteria_arguments(p)
+
+
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
+                 _cmd_diagnose),
+    "criteria": ("transport criteria for one measurement, no fitting", _cmd_criteria),
+    "run": ("the whole job on a study: check, fit, sample, diagnose, report", _cmd_run),
     "sample": ("sample the posterior from the fit's optimum (emcee)", _cmd_sample),
     "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", _cmd_fit),
     "check": ("validate a study and show what the campaign can tell", _cmd_check),
@@ -157,6 +238,10 @@ def _add_common(p: argparse.ArgumentParser, *, out: bool = False) -> None:
                        help="output folder (default: reports)")
 
 
+_ORDER = ("check", "simulate", "fit", "sample", "diagnose", "criteria", "report", "run",
+          "audit", "predict", "plan")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
     parser = _Parser(prog="kinfit", description="Intrinsic kinetics from porous-catalyst "
@@ -165,7 +250,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     parser.add_argument("--version", action="version", version=f"kinfit {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    for name, (help_text, _) in COMMANDS.items():
+    names = sorted(COMMANDS, key=lambda n: _ORDER.index(n) if n in _ORDER else len(_ORDER))
+    for name in names:
+        help_text = COMMANDS[name][0]
         p = sub.add_parser(name, help=help_text, description=help_text)
         _ARGUMENTS.get(name, lambda q: _add_common(q))(p)
     return parser
@@ -175,6 +262,9 @@ _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
     "simulate": lambda p: _add_common(p, out=True),
     "fit": _fit_arguments,
     "sample": _sample_arguments,
+    "run": _run_arguments,
+    "diagnose": _diagnose_arguments,
+    "criteria": _criteria_arguments,
 }
 
 

@@ -29,7 +29,7 @@ from kinfit.results import FitResult
 from kinfit.simulate import point_table, run_table
 from kinfit.study import Study
 
-__all__ = ["FitOptions", "fit", "fit_model", "parse_candidate", "compare_models"]
+__all__ = ["FitOptions", "fit", "fit_model", "main_spec", "parse_candidate", "comparison_rows"]
 
 
 @dataclass(frozen=True)

@@ -394,17 +394,19 @@ def compare_profiles(study: Study, cs: ComparisonSet, *, alpha: float = 0.05,
     n = y.size
     test = extra_sum_of_squares(fit.sse_pooled, n - fit.rank_pooled, fit.sse_separate,
                                 n - fit.rank_separate)
-    # direction: conversion reached by each level at the largest x every level reaches
+    # direction: mean conversion of each level's smooth curve over the range every level
+    # covers (the end point alone sits where conversion is nearly complete and noise rules)
     x_common = min(float(xs[level == g].max()) for g in range(n_levels))
-    B = fit.basis(np.array([x_common]))
+    B = fit.basis(np.linspace(0.0, x_common, 41))
     c0 = float(np.mean([r.initial_concentration for r in runs]))
-    conv = [float(1.0 - (B @ fit.coefs[g])[0] / c0) for g in range(n_levels)]
+    conv = [float(np.mean(1.0 - (B @ fit.coefs[g]) / c0)) for g in range(n_levels)]
     levels = [{"value": float(v), "runs": [r.id for r, g in zip(runs, level_of_run, strict=True)
                                            if g == i], "measure": conv[i]}
               for i, v in enumerate(cs.values)]
     xname = "w t" if scaled else "t"
     xunit = "kg s/m^3" if scaled else "s"
-    measure = f"conversion [-] at {xname} = {x_common * x_max:.4g} {xunit} (smooth fit)"
+    measure = (f"mean conversion [-] over {xname} = 0 to {x_common * x_max:.4g} {xunit} "
+               "(smooth fit)")
     what = ("profiles against time multiplied by loading (w t)" if scaled
             else "profiles against time")
     label = (f"extra-sum-of-squares F test: one smooth curve vs one per level, {what}, "
