@@ -60,7 +60,7 @@ def _fit_options(args: argparse.Namespace):
     return FitOptions(multistart=args.multistart, seed=args.seed, profile=not args.no_profile,
                       bootstrap=args.bootstrap,
                       bootstrap_kind="group" if args.bootstrap_runs else "residual",
-                      progress=not args.quiet)
+                      progress=not args.quiet, max_nfev=args.max_nfev)
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
@@ -93,6 +93,8 @@ def _fit_arguments(p: argparse.ArgumentParser) -> None:
                    help="resample whole runs instead of residuals")
     p.add_argument("--compare", nargs="+", default=None, metavar="CANDIDATE",
                    help="candidate models RATE_LAW[/FILM[/PELLET]] to compare with the study's")
+    p.add_argument("--max-nfev", type=int, default=None, metavar="N",
+                   help="cap on function evaluations of the optimiser")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 
