@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import hashlib
 import tomllib
+import zipfile
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -18,7 +19,7 @@ from numpy.typing import NDArray
 
 from kinfit.errors import StudyError
 from kinfit.parameters import ParameterTable, parameter_table_from_toml
-from kinfit.units import parse_header, parse_quantity, to_si
+from kinfit.units import parse_header, parse_quantity, printable, to_si
 
 __all__ = ["Run", "Study", "load_study", "FACTORS", "comparison_sets", "ComparisonSet"]
 
@@ -256,13 +257,26 @@ def _sha256(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
+def _is_file(path: Path) -> bool:
+    """``path.is_file()`` that says False, not raises, for names the OS cannot even look up
+    (too long, an embedded NUL byte)."""
+    try:
+        return path.is_file()
+    except (OSError, ValueError):
+        return False
+
+
 def _read_toml(path: Path) -> dict[str, Any]:
-    if not path.is_file():
-        raise StudyError(f"study file '{path}' does not exist; check the path")
+    if not _is_file(path):
+        raise StudyError(f"study file '{printable(path)}' does not exist (or is not a file); "
+                         "check the path")
     try:
         text = path.read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:
         raise StudyError(f"{path}: not UTF-8 text ({exc.reason}); save it as UTF-8") from None
+    except OSError as exc:
+        raise StudyError(f"{path}: cannot read the study file ({exc.strerror}); check its "
+                         "permissions") from None
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -284,11 +298,14 @@ def _table_ref(data: Mapping[str, Any], key: str, base: Path, study: Path) -> tu
         ref = ref["file"]
     if not isinstance(ref, str):
         raise StudyError(f"{study}: [data].{key} must be a file path string, got {ref!r}")
-    path = (base / ref).resolve()
-    if not path.is_file():
+    try:
+        path = (base / ref).resolve()
+    except (OSError, ValueError, RuntimeError):
+        path = base / ref
+    if not _is_file(path):
         raise StudyError(
-            f"{study}: [data].{key} names '{ref}', which does not exist (looked for {path}); "
-            "fix the path, relative to the study file"
+            f"{study}: [data].{key} names '{printable(ref)}', which does not exist or is not a "
+            f"file (looked for {printable(path)}); fix the path, relative to the study file"
         )
     return path, sheet
 
@@ -296,7 +313,13 @@ def _table_ref(data: Mapping[str, Any], key: str, base: Path, study: Path) -> tu
 def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
     try:
         if path.suffix.lower() in (".xlsx", ".xlsm"):
-            frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
+            try:
+                frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
+            except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
+                raise StudyError(
+                    f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
+                    f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
+                ) from None
         elif path.suffix.lower() in (".csv", ".txt"):
             frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
                                 comment="#")
@@ -304,8 +327,10 @@ def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
             raise StudyError(f"{path.name}: tables must be .csv or .xlsx, got '{path.suffix}'")
     except StudyError:
         raise
-    except (ValueError, OSError, pd.errors.ParserError, KeyError) as exc:
-        raise StudyError(f"{path.name}: cannot read the table ({exc}); check the file") from None
+    except (ValueError, OSError, pd.errors.ParserError, KeyError, zipfile.BadZipFile) as exc:
+        text = " ".join(str(exc).split())  # pandas' messages end with a newline
+        raise StudyError(f"{path.name}: cannot read the table ({printable(text, limit=160)}); "
+                         "check the file") from None
     if frame.empty and len(frame.columns) == 0:
         raise StudyError(f"{path.name}: the table is empty; it needs a header line and rows")
     return frame
@@ -325,7 +350,8 @@ def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) 
             out[i] = float(str(cell).strip())
         except ValueError:
             raise StudyError(
-                f"'{cell}' is not a number; write a plain number (the unit goes in the header)",
+                f"'{printable(cell)}' is not a number; write a plain number (the unit goes in "
+                "the header)",
                 file=fname, row=i + 1, column=col, run=run,
             ) from None
         if not np.isfinite(out[i]):
@@ -340,6 +366,9 @@ def _columns(frame: pd.DataFrame, fname: str, allowed: dict[str, str],
     """Map column name -> (header text, unit) and reject unknown or duplicate columns."""
     cols: dict[str, tuple[str, str | None]] = {}
     for header in frame.columns:
+        if not str(header).strip().isprintable():
+            raise StudyError(f"column header '{printable(header)}' holds a non-printable "
+                             "character; retype the header", file=fname)
         h = parse_header(str(header), where=fname)
         if h.name in cols:
             raise StudyError(f"column '{h.name}' appears twice; keep one", file=fname)
@@ -359,7 +388,16 @@ def _columns(frame: pd.DataFrame, fname: str, allowed: dict[str, str],
 def _si_column(frame, cols, name, kind, fname, runs):
     header, unit = cols[name]
     raw = _numeric(frame, header, fname, runs)
-    return np.asarray(to_si(raw, unit or "", kind, where=f"{fname}, column '{header}'"))
+    si = np.asarray(to_si(raw, unit or "", kind, where=f"{fname}, column '{header}'"))
+    bad = np.flatnonzero(~np.isfinite(si))
+    if bad.size:
+        i = int(bad[0])
+        raise StudyError(
+            f"{raw[i]:g} {unit or ''} overflows once converted to SI units; correct the value or "
+            "its unit", file=fname, row=i + 1, column=header,
+            run=None if runs is None else str(runs.iloc[i]),
+        )
+    return si
 
 
 def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[str]]:
@@ -379,6 +417,10 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
     for i, rid in enumerate(ids):
         if not rid or rid.lower() == "nan":
             raise StudyError("the run identifier is empty", file=fname, row=i + 1, column="run")
+        if not rid.isprintable():
+            raise StudyError(f"the run identifier '{printable(rid)}' holds a non-printable "
+                             "character; use letters, digits and punctuation", file=fname,
+                             row=i + 1, column="run")
     seen: dict[str, int] = {}
     for i, rid in enumerate(ids):
         if rid in seen:
@@ -447,8 +489,8 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
     for i, rid in enumerate(ids):
         if rid not in runs:
             raise StudyError(
-                f"observations name run '{rid}', which the runs table lacks; add the run or "
-                "fix the id", file=fname, row=i + 1, column="run", run=rid,
+                f"observations name run '{printable(rid)}', which the runs table lacks; add the "
+                "run or fix the id", file=fname, row=i + 1, column="run", run=printable(rid),
             )
     weights = (_si_column(frame, cols, "weight", "dimensionless", fname, id_series)
                if "weight" in cols else np.ones(len(ids)))
@@ -553,6 +595,7 @@ _QUANTITY_KEYS = {
     "diffusivity_temperature": "temperature",
 }
 _FLUID_KEYS = {**_QUANTITY_KEYS, "diffusivity": "diffusivity"}
+_FRACTION_KEYS = {"porosity", "bed_porosity"}
 
 
 def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]:
@@ -561,7 +604,16 @@ def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]
     for key, value in sec.items():
         kind = keys.get(key)
         if kind is not None:
-            out[key] = parse_quantity(value, kind, where=f"{path.name} [{section}].{key}")
+            where = f"{path.name} [{section}].{key}"
+            out[key] = parse_quantity(value, kind, where=where)
+            # every quantity of these sections is a positive scale (used as a divisor, under a
+            # logarithm, or as a temperature in K); porosities are fractions
+            if not out[key] > 0:
+                raise StudyError(f"{where} must be > 0 (in SI units), got {printable(value)}; "
+                                 "correct the value or its unit")
+            if key in _FRACTION_KEYS and out[key] > 1:
+                raise StudyError(f"{where} is a fraction and must lie in (0, 1], got "
+                                 f"{printable(value)}")
         else:
             out[key] = value
     return out
@@ -635,12 +687,17 @@ def load_study(path: str | Path) -> Study:
     kinetics = _quantities(_section(doc, "kinetics", path, True), "kinetics", path)
     if "rate_law" not in kinetics:
         raise StudyError(f"{path.name} [kinetics]: rate_law is missing; write rate_law = \"power\"")
+    if not isinstance(kinetics["rate_law"], str) or not kinetics["rate_law"].strip():
+        raise StudyError(f"{path.name} [kinetics]: rate_law must be the name of a rate law, "
+                         f"such as \"power\"; got {printable(repr(kinetics['rate_law']))}")
     if "reference_temperature" not in kinetics:
         raise StudyError(f"{path.name} [kinetics]: reference_temperature is missing; write "
                          "for example reference_temperature = \"50 degC\" (a mid-campaign value)")
-    kinetics.setdefault("reference_concentration", 1000.0)
     film = _quantities(_section(doc, "film", path, False), "film", path)
     film.setdefault("model", "agitation")
+    if not isinstance(film["model"], str) or not film["model"].strip():
+        raise StudyError(f"{path.name} [film]: model must be the name of a film model, such as "
+                         f"\"agitation\" or \"none\"; got {printable(repr(film['model']))}")
     pellet = _quantities(_section(doc, "pellet", path, False), "pellet", path)
     pellet["diffusivity"] = _choice(pellet, "diffusivity", ("direct", "tortuosity", "none"),
                                     f"{path.name} [pellet]", "direct")
