@@ -1,0 +1,716 @@
+"""The report's figures, drawn with matplotlib's object API on the Agg canvas (no pyplot, no
+global state), in kinfit's own style: one palette, regime colours shared by every figure, a unit
+on every axis.
+
+Each ``*_figure`` function takes plain data (arrays, frames, dicts read from the results files)
+and returns a :class:`matplotlib.figure.Figure`; :func:`render` turns one into PNG bytes and SVG
+text. Drawing happens inside :data:`STYLE`, and SVG output is deterministic (fixed hash salt, no
+date), so the same results give the same files.
+"""
+
+from __future__ import annotations
+
+import functools
+import io
+import math
+import re
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any, TypeVar, cast
+
+import matplotlib
+import numpy as np
+import pandas as pd
+from cycler import cycler
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.colors import LinearSegmentedColormap
+from matplotlib.figure import Figure
+from numpy.typing import NDArray
+
+__all__ = [
+    "PALETTE", "REGIME_COLOURS", "STYLE", "render", "pretty_unit", "axis_label", "display_scale",
+    "eta_first_order", "eta_curve", "profiles_figure", "rates_figure", "parity_figure",
+    "residuals_figure", "arrhenius_figure", "effectiveness_figure", "regime_map_figure",
+    "correlation_figure", "corner_figure", "trace_figure", "profile_likelihood_figure",
+]
+
+Array = NDArray[np.float64]
+F = TypeVar("F", bound=Callable[..., Any])
+
+#: kinfit's palette: ink blue, brick, moss, plum, ochre, teal, umber, rose
+PALETTE = ("#1f5a84", "#b94a35", "#4f7f35", "#7b4f9a", "#c9901f", "#2a8a84", "#7a6552",
+           "#b2456d")
+INK = "#1e2a35"
+MUTED = "#5d6b78"
+GRID = "#dde3e8"
+BAND = "#9cc3dc"
+CURVE = "#1f5a84"
+#: one colour per regime label, the same in every figure and table
+REGIME_COLOURS = {"kinetic": "#4f7f35", "film": "#b94a35", "pore": "#7b4f9a",
+                  "mixed": "#c9901f"}
+_REGIME_MARKERS = {"kinetic": "o", "film": "s", "pore": "D", "mixed": "^"}
+R_GAS = 8.314462618  # J/(mol K), CODATA 2018 exact value
+
+STYLE: dict[str, Any] = {
+    "font.family": "DejaVu Sans",
+    "font.size": 8.5,
+    "axes.titlesize": 9,
+    "axes.titleweight": "bold",
+    "axes.titlelocation": "left",
+    "axes.titlecolor": INK,
+    "axes.labelsize": 8.5,
+    "axes.labelcolor": INK,
+    "axes.edgecolor": MUTED,
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "axes.axisbelow": True,
+    "axes.prop_cycle": cycler(color=list(PALETTE)),
+    "grid.color": GRID,
+    "grid.linewidth": 0.6,
+    "xtick.color": MUTED,
+    "ytick.color": MUTED,
+    "xtick.labelcolor": INK,
+    "ytick.labelcolor": INK,
+    "xtick.labelsize": 7.5,
+    "ytick.labelsize": 7.5,
+    "legend.frameon": False,
+    "legend.fontsize": 7.5,
+    "lines.linewidth": 1.6,
+    "lines.markersize": 4.5,
+    "figure.facecolor": "white",
+    "savefig.facecolor": "white",
+    "mathtext.fontset": "dejavusans",
+    "svg.fonttype": "path",
+    "svg.hashsalt": "kinfit-report",
+    "path.simplify": True,
+}
+PNG_DPI = 170
+
+
+def _styled(func: F) -> F:
+    """Run a figure builder inside :data:`STYLE`."""
+
+    @functools.wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        with matplotlib.rc_context(cast(Any, STYLE)):
+            return func(*args, **kwargs)
+
+    return wrapper  # type: ignore[return-value]
+
+
+def _new_figure(width: float, height: float) -> Figure:
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def render(fig: Figure) -> tuple[bytes, str]:
+    """PNG bytes and SVG text of a figure (deterministic: no dates, fixed SVG ids).
+
+    The layout is computed once, for the PNG, and kept for the SVG."""
+    with matplotlib.rc_context(cast(Any, STYLE)):
+        png = io.BytesIO()
+        fig.savefig(png, format="png", dpi=PNG_DPI, metadata={"Software": None})
+        fig.set_layout_engine("none")
+        svg = io.BytesIO()
+        fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
+    return png.getvalue(), svg.getvalue().decode("utf-8")
+
+
+# ---------------------------------------------------------------------------------- units
+_SUPERSCRIPT = str.maketrans("0123456789-+", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺")
+
+
+def pretty_unit(unit: str | None) -> str:
+    """An SI unit string for reading: ``mol/(kg*s)`` -> ``mol/(kg·s)``, ``m^2/s`` -> ``m²/s``,
+    ``1`` or ``-`` -> ``–`` (dimensionless)."""
+    u = (unit or "").strip()
+    if u in ("", "1", "-", "dimensionless"):
+        return "–"
+    u = u.replace("**", "^").replace("*", "·")
+    return re.sub(r"\^(-?\d+)", lambda m: m.group(1).translate(_SUPERSCRIPT), u)
+
+
+def axis_label(quantity: str, unit: str | None) -> str:
+    """``quantity [unit]`` with the unit made readable."""
+    return f"{quantity} [{pretty_unit(unit)}]"
+
+
+def display_scale(values: Array, unit: str | None) -> tuple[float, str]:
+    """A power of ten (a multiple of 3) that brings ``values`` near 1, and the unit written
+    with it: 5e-6 m/s -> (1e6, "10⁻⁶ m/s"), so that axes show 5.0 instead of an offset text."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    mag = float(np.median(np.abs(v))) if v.size else 0.0
+    if mag == 0.0 or 1e-2 <= mag < 1e4:
+        return 1.0, pretty_unit(unit)
+    e = 3 * math.floor(math.log10(mag) / 3)
+    base = pretty_unit(unit)
+    prefix = "10" + str(e).translate(_SUPERSCRIPT)
+    return 10.0**-e, prefix if base == "–" else f"{prefix} {base}"
+
+
+# ---------------------------------------------------------------------------------- pellet
+def eta_first_order(phi: Array, geometry: str) -> Array:
+    """First-order isothermal effectiveness factor in the Aris normalisation (L = Vp/Sp).
+
+    slab: tanh(phi)/phi; infinite cylinder: I1(2 phi)/(phi I0(2 phi)); sphere:
+    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957; REFERENCES.md section 1). Small
+    moduli use the series 1 - c phi^2 (+ next term), c = 1/3, 1/2, 3/5, where the closed forms
+    lose digits; the cylinder uses exponentially scaled Bessel functions.
+    """
+    from scipy.special import i0e, i1e
+
+    phi = np.asarray(phi, dtype=float)
+    out = np.ones_like(phi)
+    small = phi < 1e-2
+    big = ~small & np.isfinite(phi)
+    x = phi[big]
+    if geometry == "slab":
+        out[big] = np.tanh(x) / x
+        s = phi[small]
+        out[small] = 1 - s**2 / 3 + 2 * s**4 / 15
+    elif geometry == "cylinder":
+        out[big] = i1e(2 * x) / (x * i0e(2 * x))
+        s = 2 * phi[small]  # radius form phi_R = 2 phi_L: 1 - x^2/8 + x^4/48
+        out[small] = 1 - s**2 / 8 + s**4 / 48
+    elif geometry == "sphere":
+        out[big] = (1.0 / np.tanh(3 * x) - 1.0 / (3 * x)) / x
+        s = 3 * phi[small]  # radius form phi_R = 3 phi_L: 1 - x^2/15 + 2 x^4/315
+        out[small] = 1 - s**2 / 15 + 2 * s**4 / 315
+    else:
+        raise ValueError(f"geometry '{geometry}' is not one of sphere, cylinder, slab")
+    out[np.isinf(phi)] = 0.0
+    return out
+
+
+def eta_curve(phi: Array, order: float, geometry: str) -> tuple[Array, str]:
+    """eta(Phi) for a power law of ``order`` in ``geometry``, and where it came from.
+
+    Uses :func:`kinfit.transport.pellet.eta_power_law` (the fitted model's own pellet solution)
+    when that module is available, else the first-order closed form (exact for order 1, an
+    approximation in the generalised modulus otherwise).
+    """
+    try:
+        from kinfit.transport.pellet import eta_power_law
+
+        eta = np.asarray(eta_power_law(np.asarray(phi, dtype=float),
+                                       np.full(np.shape(phi), float(order)), geometry),
+                         dtype=float)
+        if eta.shape == np.shape(phi) and np.all(np.isfinite(eta)):
+            return eta, f"kinfit's pellet solution, order {order:.3g}, {geometry}"
+    except (ImportError, AttributeError, TypeError, ValueError):
+        pass
+    label = f"first-order closed form, {geometry}"
+    if abs(order - 1.0) > 1e-9:
+        label += f" (approximates order {order:.3g} in the generalised modulus)"
+    return eta_first_order(phi, geometry), label
+
+
+# ---------------------------------------------------------------------------------- helpers
+def _regime_of(regimes: Mapping[str, str], run: str) -> str:
+    r = regimes.get(run, "mixed")
+    return r if r in REGIME_COLOURS else "mixed"
+
+
+def _regime_legend(ax: Any, present: Sequence[str], **kw: Any) -> None:
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], ls="none", marker=_REGIME_MARKERS[r], color=REGIME_COLOURS[r],
+                      label=r) for r in REGIME_COLOURS if r in present]
+    if handles:
+        ax.legend(handles=handles, title="regime", title_fontsize=7.5, **kw)
+
+
+def _grid_shape(n: int, max_cols: int = 4) -> tuple[int, int]:
+    cols = min(max_cols, n) if n > 4 else min(n, 3)
+    cols = max(cols, 1)
+    return math.ceil(n / cols), cols
+
+
+# ---------------------------------------------------------------------------------- data
+@_styled
+def profiles_figure(observed: pd.DataFrame, curves: Mapping[str, tuple[Array, Array]],
+                    *, titles: Mapping[str, str], regimes: Mapping[str, str],
+                    bands: pd.DataFrame | None = None, curve_label: str = "fit") -> Figure:
+    """Small multiples, one panel per run: data, the fitted profile and the 90 % band.
+
+    Parameters
+    ----------
+    observed : DataFrame
+        Columns ``run``, ``time [s]``, ``observed`` (mol/m^3).
+    curves : mapping
+        run -> (times in s, concentrations in mol/m^3) of the smooth fitted curve.
+    titles, regimes : mapping
+        run -> panel title; run -> regime label.
+    bands : DataFrame, optional
+        Columns ``run``, ``time [s]``, ``q05``, ``q50``, ``q95`` (mol/m^3).
+    """
+    runs = list(dict.fromkeys(observed["run"].astype(str)))
+    nrows, ncols = _grid_shape(len(runs))
+    fig = _new_figure(7.4, 1.2 + 1.9 * nrows)
+    axes = np.atleast_1d(fig.subplots(nrows, ncols, sharey=True, squeeze=False)).ravel()
+    ymax = float(np.nanmax(observed["observed"])) * 1.08
+    for k, (ax, rid) in enumerate(zip(axes, runs, strict=False)):
+        sel = observed["run"].astype(str) == rid
+        t_min = observed.loc[sel, "time [s]"].to_numpy(float) / 60.0
+        y = observed.loc[sel, "observed"].to_numpy(float)
+        if bands is not None:
+            b = bands[bands["run"].astype(str) == rid].sort_values("time [s]")
+            if len(b):
+                ax.fill_between(b["time [s]"].to_numpy(float) / 60.0, b["q05"], b["q95"],
+                                color=BAND, alpha=0.55, lw=0, label="90 % band")
+        if rid in curves:
+            tc, cc = curves[rid]
+            ax.plot(np.asarray(tc) / 60.0, cc, color=CURVE, lw=1.5, label=curve_label)
+        ax.plot(t_min, y, ls="none", marker="o", ms=3.4, mfc="white", mec=INK, mew=0.9,
+                label="data")
+        reg = _regime_of(regimes, rid)
+        ax.set_title(titles.get(rid, rid), fontsize=7.2, linespacing=1.25)
+        ax.text(0.97, 0.93, reg, transform=ax.transAxes, ha="right", va="top", fontsize=7,
+                color="white", bbox={"boxstyle": "round,pad=0.25", "fc": REGIME_COLOURS[reg],
+                                     "ec": "none"})
+        ax.set_ylim(0.0, ymax)
+        ax.set_xlim(left=0.0)
+        # time spans differ from run to run: every panel keeps its time axis and its unit;
+        # the shared concentration axis is labelled on the first column
+        ax.set_xlabel(axis_label("time", "min"), fontsize=7.5, labelpad=1.5)
+        if k % ncols == 0:
+            ax.set_ylabel(axis_label("C_b", "mol/m^3"))
+        else:
+            ax.tick_params(labelleft=False)
+    for ax in axes[len(runs):]:
+        ax.set_visible(False)
+    handles, labels = axes[0].get_legend_handles_labels()
+    if handles:
+        fig.legend(handles, labels, loc="outside upper right", ncols=len(handles))
+    return fig
+
+
+@_styled
+def rates_figure(frame: pd.DataFrame, *, regimes: Mapping[str, str], unit: str) -> Figure:
+    """Rate campaign: observed rates (points) and fitted rates (bars) per run.
+
+    ``frame`` has columns ``run``, ``observed``, ``fitted``.
+    """
+    runs = list(dict.fromkeys(frame["run"].astype(str)))
+    fig = _new_figure(7.2, 3.0)
+    ax = fig.add_subplot()
+    x = np.arange(len(runs))
+    fitted = frame.groupby(frame["run"].astype(str), sort=False)["fitted"].mean()
+    ax.bar(x, [fitted[r] for r in runs], color=[REGIME_COLOURS[_regime_of(regimes, r)]
+                                               for r in runs], alpha=0.35, width=0.7,
+           label="fitted (colour: regime)")
+    pos = {r: i for i, r in enumerate(runs)}
+    ax.plot([pos[str(r)] for r in frame["run"]], frame["observed"], ls="none", marker="o",
+            mfc="white", mec=INK, label="observed")
+    ax.set_xticks(x, runs, rotation=60 if len(runs) > 12 else 0)
+    ax.set_xlabel(axis_label("run", "-"))
+    ax.set_ylabel(axis_label("rate r_obs", unit))
+    ax.legend(loc="upper right")
+    return fig
+
+
+@_styled
+def parity_figure(frame: pd.DataFrame, *, regimes: Mapping[str, str], quantity: str,
+                  unit: str) -> Figure:
+    """Observed against fitted values with the 1:1 line, coloured by the run's regime.
+
+    ``frame`` has columns ``run``, ``observed``, ``fitted``.
+    """
+    fig = _new_figure(3.9, 3.6)
+    ax = fig.add_subplot()
+    lo = float(min(frame["observed"].min(), frame["fitted"].min()))
+    hi = float(max(frame["observed"].max(), frame["fitted"].max()))
+    pad = 0.04 * (hi - lo or 1.0)
+    ax.plot([lo - pad, hi + pad], [lo - pad, hi + pad], color=MUTED, lw=0.9, ls="--",
+            label="1:1")
+    present = []
+    for reg in REGIME_COLOURS:
+        sel = frame["run"].astype(str).map(lambda r: _regime_of(regimes, r)) == reg
+        if sel.any():
+            present.append(reg)
+            ax.plot(frame.loc[sel, "fitted"], frame.loc[sel, "observed"], ls="none",
+                    marker=_REGIME_MARKERS[reg], ms=3.6, color=REGIME_COLOURS[reg], alpha=0.8)
+    ax.set_xlim(lo - pad, hi + pad)
+    ax.set_ylim(lo - pad, hi + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel(axis_label(f"fitted {quantity}", unit))
+    ax.set_ylabel(axis_label(f"observed {quantity}", unit))
+    _regime_legend(ax, present, loc="upper left")
+    return fig
+
+
+@_styled
+def residuals_figure(frame: pd.DataFrame, *, regimes: Mapping[str, str], unit: str,
+                     sigma: float | None, time_axis: bool = True) -> Figure:
+    """Residuals (observed - fitted) against time and against the fitted value, with the
+    +/- 2 sigma band of the error model.
+
+    ``frame`` has columns ``run``, ``time [s]``, ``fitted``, ``residual``.
+    """
+    fig = _new_figure(7.2, 2.9)
+    axes = fig.subplots(1, 2 if time_axis else 1, sharey=True, squeeze=False)[0]
+    xs = ([("time [s]", axis_label("time", "min"), 1 / 60.0)] if time_axis else []) + [
+        ("fitted", axis_label("fitted value", unit), 1.0)]
+    present = []
+    for ax, (col, label, scale) in zip(axes, xs, strict=True):
+        ax.axhline(0.0, color=MUTED, lw=0.9)
+        if sigma is not None and np.isfinite(sigma):
+            ax.axhspan(-2 * sigma, 2 * sigma, color=GRID, alpha=0.6, lw=0, label="±2σ")
+        for reg in REGIME_COLOURS:
+            sel = frame["run"].astype(str).map(lambda r: _regime_of(regimes, r)) == reg
+            if sel.any():
+                if reg not in present:
+                    present.append(reg)
+                ax.plot(frame.loc[sel, col] * scale, frame.loc[sel, "residual"], ls="none",
+                        marker=_REGIME_MARKERS[reg], ms=3.2, color=REGIME_COLOURS[reg],
+                        alpha=0.8)
+        ax.set_xlabel(label)
+    axes[0].set_ylabel(axis_label("residual", unit))
+    _regime_legend(axes[-1], present, loc="upper right", fontsize=7)
+    return fig
+
+
+# ---------------------------------------------------------------------------------- kinetics
+@_styled
+def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temperature: float,
+                     temperatures: Sequence[float], k_unit: str,
+                     covariance: Array | None = None,
+                     per_run: Sequence[tuple[str, float, float, str]] = (),
+                     apparent: Sequence[tuple[float, float]] = (),
+                     apparent_label: str = "apparent (diagnosis)") -> Figure:
+    """Arrhenius plot: the intrinsic k(T) with its 95 % band, each run's effective rate
+    constant at its initial conditions, and apparent constants per temperature.
+
+    Parameters
+    ----------
+    k_ref : float
+        Rate constant at ``reference_temperature``, in ``k_unit``.
+    activation_energy : float
+        J/mol.
+    reference_temperature : float
+        K.
+    temperatures : sequence of float
+        Temperatures of the campaign, K (the line spans them with a margin).
+    covariance : ndarray, shape (2, 2), optional
+        Covariance of (k_ref, activation_energy) for the band (delta method on ln k).
+    per_run : sequence of (run, T in K, k_eff, regime)
+    apparent : sequence of (T in K, k_apparent)
+    """
+    T = np.asarray(temperatures, dtype=float)
+    lo, hi = float(T.min()) - 8.0, float(T.max()) + 8.0
+    Tg = np.linspace(lo, hi, 120)
+    x = -(1.0 / Tg - 1.0 / reference_temperature) / R_GAS
+    k = k_ref * np.exp(activation_energy * x)
+    fig = _new_figure(4.6, 3.6)
+    ax = fig.add_subplot()
+    if covariance is not None and np.all(np.isfinite(covariance)):
+        c = np.asarray(covariance, dtype=float)
+        var = c[0, 0] / k_ref**2 + x**2 * c[1, 1] + 2 * x * c[0, 1] / k_ref
+        sd = np.sqrt(np.maximum(var, 0.0))
+        ax.fill_between(1e3 / Tg, k * np.exp(-1.96 * sd), k * np.exp(1.96 * sd), color=BAND,
+                        alpha=0.55, lw=0, label="intrinsic, 95 % band")
+    ax.plot(1e3 / Tg, k, color=CURVE, label=f"intrinsic k(T), Ea = {activation_energy / 1e3:.1f}"
+            " kJ/mol")
+    present = []
+    for reg in REGIME_COLOURS:
+        pts = [(t, kk) for _, t, kk, r in per_run if r == reg and kk > 0]
+        if pts:
+            present.append(reg)
+            a = np.array(pts)
+            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker=_REGIME_MARKERS[reg], ms=4,
+                    color=REGIME_COLOURS[reg], alpha=0.85, label=f"run ({reg})")
+    if apparent:
+        a = np.array([p for p in apparent if p[1] > 0], dtype=float).reshape(-1, 2)
+        if a.size:
+            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker="X", ms=6.5, color=INK,
+                    label=apparent_label)
+    ax.set_yscale("log")
+    shown = [float(k.min()), float(k.max())] + [p[2] for p in per_run if p[2] > 0] + [
+        p[1] for p in apparent if p[1] > 0]
+    ax.set_ylim(min(shown) / 4.0, max(shown) * 4.0)
+    ax.set_xlabel(axis_label("1000 / T", "1/K"))
+    ax.set_ylabel(axis_label("rate constant k", k_unit))
+    top = ax.secondary_xaxis("top", functions=(lambda v: 1e3 / np.maximum(v, 1e-9) - 273.15,
+                                               lambda v: 1e3 / (np.asarray(v) + 273.15)))
+    top.set_xlabel(axis_label("temperature", "degC").replace("degC", "°C"))
+    ax.legend(loc="best", fontsize=7)
+    return fig
+
+
+@_styled
+def effectiveness_figure(*, geometry: str, order: float,
+                         runs: Sequence[tuple[str, float, float, str]],
+                         intervals: Mapping[str, tuple[tuple[float, float],
+                                                       tuple[float, float]]] | None = None,
+                         note: str | None = None) -> Figure:
+    """Effectiveness factor against the generalised Thiele modulus, with each run on it.
+
+    Parameters
+    ----------
+    geometry : {"sphere", "cylinder", "slab"}
+    order : float
+        Reaction order of the curve.
+    runs : sequence of (run, Phi, eta, regime)
+        Runs without a finite positive modulus are left out (the note says why).
+    intervals : mapping, optional
+        run -> ((Phi q05, Phi q95), (eta q05, eta q95)) posterior 90 % intervals.
+    """
+    phi = np.logspace(-2, 2.5, 300)
+    eta, source = eta_curve(phi, order, geometry)
+    fig = _new_figure(4.6, 3.6)
+    ax = fig.add_subplot()
+    ax.plot(phi, eta, color=CURVE, label=source if len(source) < 48 else source[:46] + "…")
+    ax.plot(phi[phi > 1], 1.0 / phi[phi > 1], color=MUTED, ls=":", lw=1.0,
+            label="asymptote 1/Φ")
+    present = []
+    placed = 0
+    for rid, ph, et, reg in runs:
+        if not (np.isfinite(ph) and ph > 0 and np.isfinite(et)):
+            continue
+        reg = reg if reg in REGIME_COLOURS else "mixed"
+        placed += 1
+        if intervals and rid in intervals:
+            (p0, p1), (e0, e1) = intervals[rid]
+            ax.errorbar([ph], [et], xerr=[[max(ph - p0, 0)], [max(p1 - ph, 0)]],
+                        yerr=[[max(et - e0, 0)], [max(e1 - et, 0)]], fmt="none",
+                        ecolor=REGIME_COLOURS[reg], elinewidth=0.8, alpha=0.7)
+        ax.plot([ph], [et], ls="none", marker=_REGIME_MARKERS[reg], color=REGIME_COLOURS[reg],
+                ms=4.5, mec="white", mew=0.4)
+        if reg not in present:
+            present.append(reg)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_ylim(min(0.01, float(eta.min())), 1.3)
+    ax.set_xlim(phi[0], phi[-1])
+    ax.set_xlabel(axis_label("generalised Thiele modulus Φ (L = Vp/Sp)", "-"))
+    ax.set_ylabel(axis_label("effectiveness factor η", "-"))
+    text = note
+    if placed == 0 and text is None:
+        text = "no run has a finite modulus to place"
+    if text:
+        ax.text(0.03, 0.05, text, transform=ax.transAxes, fontsize=7, color=MUTED,
+                va="bottom", wrap=True)
+    ax.legend(loc="upper right", fontsize=7)
+    if present:
+        from matplotlib.lines import Line2D
+
+        first = ax.get_legend()
+        if first is not None:
+            ax.add_artist(first)
+        ax.legend(handles=[Line2D([], [], ls="none", marker=_REGIME_MARKERS[r],
+                                  color=REGIME_COLOURS[r], label=r) for r in present],
+                  loc="lower left", title="regime", title_fontsize=7.5,
+                  bbox_to_anchor=(0.0, 0.12 if text else 0.0))
+    return fig
+
+
+@_styled
+def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry_limit: float,
+                      weisz_prater_limit: float) -> Figure:
+    """Carberry number against the Weisz-Prater number (log axes) with the threshold lines.
+
+    Parameters
+    ----------
+    runs : sequence of (run, Weisz-Prater Psi_L, Carberry, regime)
+        Zero values (no pellet or no film model) are drawn at the axis edge with an arrow
+        marker.
+    carberry_limit, weisz_prater_limit : float
+        Threshold values in use (the results' thresholds).
+    """
+    fig = _new_figure(4.8, 3.8)
+    ax = fig.add_subplot()
+    wp = np.array([r[1] for r in runs], dtype=float)
+    ca = np.array([r[2] for r in runs], dtype=float)
+    pos_wp = wp[np.isfinite(wp) & (wp > 0)]
+    pos_ca = ca[np.isfinite(ca) & (ca > 0)]
+    x_lo = min([weisz_prater_limit / 100] + list(pos_wp / 3))
+    x_hi = max([weisz_prater_limit * 30] + list(pos_wp * 3))
+    y_lo = min([carberry_limit / 100] + list(pos_ca / 3))
+    y_hi = max([carberry_limit * 30] + list(pos_ca * 3))
+    ax.fill_between([x_lo, weisz_prater_limit], y_lo, carberry_limit,
+                    color=REGIME_COLOURS["kinetic"], alpha=0.08, lw=0)
+    ax.axvline(weisz_prater_limit, color=REGIME_COLOURS["pore"], ls="--", lw=1.0)
+    ax.axhline(carberry_limit, color=REGIME_COLOURS["film"], ls="--", lw=1.0)
+    ax.text(weisz_prater_limit, y_hi, f" Weisz–Prater limit {weisz_prater_limit:.3g}",
+            color=REGIME_COLOURS["pore"], fontsize=7, va="top", ha="left")
+    ax.text(x_hi, carberry_limit, f"Carberry limit {carberry_limit:.3g} ", fontsize=7,
+            color=REGIME_COLOURS["film"], va="bottom", ha="right")
+    ax.text(x_lo, y_lo, "  no film or pore limitation", fontsize=7, va="bottom", ha="left",
+            color=REGIME_COLOURS["kinetic"])
+    present = []
+    zero_note = []
+    for rid, w, c, reg in runs:
+        reg = reg if reg in REGIME_COLOURS else "mixed"
+        marker = _REGIME_MARKERS[reg]
+        xw, yc = w, c
+        if not (np.isfinite(w) and w > 0):
+            xw, marker = x_lo, "<"
+            zero_note.append("Ψ")
+        if not (np.isfinite(c) and c > 0):
+            yc, marker = y_lo, "v"
+            zero_note.append("Ca")
+        ax.plot([xw], [yc], ls="none", marker=marker, color=REGIME_COLOURS[reg], ms=5,
+                mec="white", mew=0.4, clip_on=False)
+        ax.annotate(rid, (xw, yc), xytext=(3, 3), textcoords="offset points", fontsize=6.2,
+                    color=INK)
+        if reg not in present:
+            present.append(reg)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlim(x_lo, x_hi)
+    ax.set_ylim(y_lo, y_hi)
+    ax.set_xlabel(axis_label("Weisz–Prater number Ψ_L", "-"))
+    ax.set_ylabel(axis_label("Carberry number Ca", "-"))
+    if zero_note:
+        which = " and ".join(sorted(set(zero_note)))
+        ax.set_title(f"runs with {which} = 0 (no model for that resistance) sit on the edge",
+                     fontsize=7, fontweight="normal", color=MUTED)
+    _regime_legend(ax, present, loc="upper left", bbox_to_anchor=(1.01, 1.0))
+    return fig
+
+
+# ---------------------------------------------------------------------------------- statistics
+_DIVERGING = LinearSegmentedColormap.from_list("kinfit_diverging",
+                                               ["#b94a35", "#f4e9e4", "#ffffff", "#e1ecf3",
+                                                "#1f5a84"])
+
+
+@_styled
+def correlation_figure(names: Sequence[str], matrix: Array) -> Figure:
+    """Heat map of the parameter correlation matrix with the coefficients written in."""
+    m = np.asarray(matrix, dtype=float)
+    p = len(names)
+    size = max(3.0, min(7.0, 1.2 + 0.55 * p))
+    fig = _new_figure(size + 0.9, size)
+    ax = fig.add_subplot()
+    im = ax.imshow(m, cmap=_DIVERGING, vmin=-1, vmax=1)
+    ax.grid(False)
+    ax.set_xticks(range(p), names, rotation=45, ha="right")
+    ax.set_yticks(range(p), names)
+    if p <= 12:
+        for i in range(p):
+            for j in range(p):
+                if np.isfinite(m[i, j]):
+                    ax.text(j, i, f"{m[i, j]:+.2f}", ha="center", va="center",
+                            fontsize=6.5 if p > 7 else 7.5,
+                            color="white" if abs(m[i, j]) > 0.75 else INK)
+    ax.set_xlabel(axis_label("parameter", "-"))
+    ax.set_ylabel(axis_label("parameter", "-"))
+    cb = fig.colorbar(im, ax=ax, shrink=0.8)
+    cb.set_label(axis_label("correlation coefficient", "-"))
+    return fig
+
+
+@_styled
+def profile_likelihood_figure(profiles: Mapping[str, Mapping[str, Sequence[float]]], *,
+                              t_crit: float | None, estimates: Mapping[str, float],
+                              units: Mapping[str, str]) -> Figure:
+    """Signed-root profile traces tau(value) per parameter with the +/- t_crit lines."""
+    names = [n for n, p in profiles.items() if len(p.get("values", ())) > 1]
+    nrows, ncols = _grid_shape(len(names), max_cols=3)
+    fig = _new_figure(7.2, 0.6 + 2.1 * nrows)
+    axes = np.atleast_1d(fig.subplots(nrows, ncols, squeeze=False)).ravel()
+    for ax, name in zip(axes, names, strict=False):
+        v = np.asarray(profiles[name]["values"], dtype=float)
+        tau = np.asarray(profiles[name]["tau"], dtype=float)
+        scale, unit = display_scale(v, units.get(name, ""))
+        order = np.argsort(v)
+        ax.plot(v[order] * scale, tau[order], color=CURVE, marker=".", ms=3)
+        if t_crit:
+            for s in (-t_crit, t_crit):
+                ax.axhline(s, color=REGIME_COLOURS["film"], ls="--", lw=0.9)
+        if name in estimates:
+            ax.axvline(estimates[name] * scale, color=MUTED, lw=0.8)
+        ax.set_title(name, fontsize=8)
+        ax.set_xlabel(f"{name} [{unit}]")
+        ax.set_ylabel(axis_label("signed root τ", "-"))
+    for ax in axes[len(names):]:
+        ax.set_visible(False)
+    return fig
+
+
+@_styled
+def corner_figure(draws: pd.DataFrame, names: Sequence[str], *, units: Mapping[str, str],
+                  estimates: Mapping[str, float] | None = None, bins: int = 28) -> Figure:
+    """Pairwise marginals of the posterior draws (drawn here with matplotlib): histograms
+    on the diagonal with the median and the 90 % interval, 2-D histograms below it, and the
+    least-squares estimate as cross-hairs."""
+    p = len(names)
+    size = max(3.2, min(7.4, 1.35 * p + 0.6))
+    fig = _new_figure(size, size)
+    axes = fig.subplots(p, p, squeeze=False)
+    cmap = LinearSegmentedColormap.from_list("kinfit_density", ["#ffffff", "#9cc3dc",
+                                                                "#1f5a84", "#0e2c44"])
+    scales = {n: display_scale(draws[n].to_numpy(float), units.get(n, "")) for n in names}
+    data = {n: draws[n].to_numpy(float) * scales[n][0] for n in names}
+    est = {n: v * scales[n][0] for n, v in (estimates or {}).items() if n in scales}
+    limits = {}
+    for n in names:
+        lo, hi = np.quantile(data[n], [0.002, 0.998])
+        pad = 0.05 * (hi - lo or abs(hi) or 1.0)
+        limits[n] = (lo - pad, hi + pad)
+    for i, yi in enumerate(names):
+        for j, xj in enumerate(names):
+            ax = axes[i, j]
+            if j > i:
+                ax.set_visible(False)
+                continue
+            ax.grid(False)
+            if i == j:
+                ax.hist(data[xj], bins=bins, range=limits[xj], color=BAND, edgecolor=CURVE,
+                        linewidth=0.5, histtype="stepfilled")
+                q = np.quantile(data[xj], [0.05, 0.5, 0.95])
+                for qq, ls in zip(q, (":", "-", ":"), strict=True):
+                    ax.axvline(qq, color=INK, lw=0.9, ls=ls)
+                ax.set_yticks([])
+                ax.spines["left"].set_visible(False)
+            else:
+                ax.hist2d(data[xj], data[yi], bins=bins, range=[limits[xj], limits[yi]],
+                          cmap=cmap)
+                ax.set_ylim(limits[yi])
+            if xj in est:
+                ax.axvline(est[xj], color=REGIME_COLOURS["film"], lw=0.8)
+            if i != j and yi in est:
+                ax.axhline(est[yi], color=REGIME_COLOURS["film"], lw=0.8)
+            ax.set_xlim(limits[xj])
+            ax.tick_params(labelsize=6.2)
+            if i == p - 1:
+                ax.set_xlabel(f"{xj}\n[{scales[xj][1]}]", fontsize=7)
+                for lab in ax.get_xticklabels():
+                    lab.set_rotation(40)
+            else:
+                ax.tick_params(labelbottom=False)
+            if j == 0 and i > 0:
+                ax.set_ylabel(f"{yi}\n[{scales[yi][1]}]", fontsize=7)
+            else:
+                ax.tick_params(labelleft=False)
+    return fig
+
+
+@_styled
+def trace_figure(draws: pd.DataFrame, names: Sequence[str], *,
+                 units: Mapping[str, str]) -> Figure:
+    """Traces of the posterior chain: one panel per quantity (and ``log_prob`` when given),
+    one thin line per walker when ``step`` and ``walker`` columns exist."""
+    cols = list(names) + (["log_prob"] if "log_prob" in draws.columns else [])
+    fig = _new_figure(7.2, 0.5 + 1.05 * len(cols))
+    axes = fig.subplots(len(cols), 1, sharex=True, squeeze=False)[:, 0]
+    by_walker = "walker" in draws.columns and "step" in draws.columns
+    for ax, name in zip(axes, cols, strict=True):
+        scale, unit = display_scale(draws[name].to_numpy(float),
+                                    "-" if name == "log_prob" else units.get(name, ""))
+        if by_walker:
+            walkers = draws["walker"].unique()
+            step = max(1, len(walkers) // 24)
+            for w in walkers[::step]:
+                sub = draws[draws["walker"] == w]
+                ax.plot(sub["step"], sub[name] * scale, lw=0.45, alpha=0.55, color=CURVE)
+        else:
+            ax.plot(np.arange(len(draws)), draws[name] * scale, lw=0.5, color=CURVE)
+        ax.set_ylabel(f"{name} [{unit}]", fontsize=6.8, rotation=0, ha="right", va="center")
+        ax.tick_params(labelsize=6.5)
+    axes[-1].set_xlabel(axis_label("step" if by_walker else "draw", "-"))
+    return fig

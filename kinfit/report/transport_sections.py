@@ -1,0 +1,321 @@
+"""The report's sections built from the transport state and the optional files: the transport
+diagnosis (per-run criteria and regime, thresholds and sources, regime map, effectiveness factor,
+intrinsic against apparent kinetics, model-free tests and suggested runs from diagnosis.json) and
+the posterior (posterior.json, posterior_draws.csv). Sections and blocks appear as their data
+exist; every optional field is read with a default.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from kinfit.criteria import REGIMES, THRESHOLD_SOURCES
+from kinfit.report import figures as fg
+from kinfit.report.content import (
+    CRITERIA_KEYS,
+    FACTOR_LABEL,
+    Equation,
+    Facts,
+    Heading,
+    Items,
+    Section,
+    Table,
+    Text,
+    factor_text,
+    fmt,
+    fmt_interval,
+    fmt_p,
+    get_path,
+)
+from kinfit.report.equations import EQUATIONS
+
+if TYPE_CHECKING:
+    from kinfit.report.builder import ReportBuilder
+
+__all__ = ["transport_section", "posterior_section"]
+
+
+def _thresholds(rb: ReportBuilder) -> tuple[dict[str, float], dict[str, str]]:
+    diag = rb.inp.diagnosis or {}
+    first = next(iter(rb.res.runs.values()), {})
+    limits = dict(first.get("thresholds") or {})
+    limits.update({k: v for k, v in (diag.get("thresholds") or {}).items()
+                   if isinstance(v, int | float)})
+    sources = dict(THRESHOLD_SOURCES)
+    sources.update({k: str(v) for k, v in (diag.get("sources") or {}).items()})
+    return limits, sources
+
+def transport_section(rb: ReportBuilder) -> Section:
+    """The transport diagnosis: per-run criteria and regime with thresholds and sources,
+    regime map, effectiveness factor, kinetics and (when present) the diagnosis file."""
+    res, diag = rb.res, rb.inp.diagnosis or {}
+    limits, sources = _thresholds(rb)
+    header = ["run", "regime", "Φ", "η", "Ψ_L", "Mears", "Ca", "film share",
+              "pore share", "reaction share", "intrinsic"]
+    rows: list[Sequence[str]] = []
+    tones: list[list[str | None]] = []
+    pass_key = {"effectiveness_factor": "effectiveness_factor", "weisz_prater":
+                "weisz_prater", "mears": "mears", "carberry": "carberry"}
+    for rid, r in res.runs.items():
+        sh = r.get("shares") or {}
+        passes = r.get("passes") or {}
+        row = [rid, str(r.get("regime"))] + [fmt(r.get(k), 3) for k, _ in CRITERIA_KEYS] + [
+            fmt(sh.get("film"), 3), fmt(sh.get("pore"), 3), fmt(sh.get("reaction"), 3),
+            "yes" if r.get("intrinsic") else "no"]
+        tone = [None, rb.regimes[rid], None]
+        for k, _ in CRITERIA_KEYS[1:]:
+            ok = passes.get(pass_key.get(k, k))
+            tone.append(None if ok is None else ("ok" if ok else "fail"))
+        tone += [None, None, None, "ok" if r.get("intrinsic") else "fail"]
+        rows.append(row)
+        tones.append(tone)
+    blocks: list[Any] = [
+        Text("Criteria at each run's initial conditions, from the fitted model. The "
+             "regime names the resistance whose share of the total exceeds one half "
+             "(\"mixed\" when none does)."),
+        rb.table("Per-run transport criteria and regime; green meets the threshold, red "
+                   "fails it.", header, rows, tones=tones,
+                   numeric=(False, False) + (True,) * 8 + (False,), csv="runs.csv"),
+        Equation(EQUATIONS["carberry"], "Carberry number (external film)"),
+        Equation(EQUATIONS["weisz_prater"], "Weisz–Prater number, L = Vp/Sp normalisation"),
+        Equation(EQUATIONS["mears"], "Mears number with the particle density"),
+        Equation(EQUATIONS["shares"], "resistances in series per kg: film, reaction, pore"),
+    ]
+    trows = [(k, fmt(v, 4), sources.get(k, "")) for k, v in limits.items()]
+    blocks.append(rb.table("Thresholds in use and their sources.",
+                             ("criterion", "limit", "source"), trows,
+                             numeric=(False, True, False)))
+    wp_lim, ca_lim = limits.get("weisz_prater"), limits.get("carberry")
+    if wp_lim and ca_lim:
+        pts = [(rid, float(r.get("weisz_prater") or 0.0), float(r.get("carberry") or 0.0),
+                rb.regimes[rid]) for rid, r in res.runs.items()]
+        b = rb.figure("regime_map", "Regime map: Carberry number (film) against "
+                        "Weisz–Prater number (pores) for each run, with the thresholds "
+                        "in use (dashed).", lambda: fg.regime_map_figure(
+                            pts, carberry_limit=float(ca_lim),
+                            weisz_prater_limit=float(wp_lim)), "regime map")
+        if b:
+            blocks.append(b)
+    order = _order(rb)
+    geometry = str(res.model.get("geometry", "sphere"))
+    post_runs = get_path(rb.inp.posterior, "runs", default={}) or {}
+    intervals = {}
+    for rid, pr in post_runs.items():
+        ph, et = pr.get("thiele_modulus") or {}, pr.get("effectiveness_factor") or {}
+        if all(isinstance(d.get(k), int | float) for d in (ph, et) for k in ("q05", "q95")):
+            intervals[rid] = ((ph["q05"], ph["q95"]), (et["q05"], et["q95"]))
+    note = ("pellet model off: every run has η = 1 by assumption"
+            if res.model.get("pellet") == "none" else None)
+    pts_eta = [(rid, float(r.get("thiele_modulus") or 0.0),
+                float(r.get("effectiveness_factor") or 1.0), rb.regimes[rid])
+               for rid, r in res.runs.items()]
+    b = rb.figure("effectiveness", f"Effectiveness factor against the generalised Thiele "
+                    f"modulus for a {geometry} (order {fmt(order, 3)}), with each run at "
+                    "its initial conditions" + (" and its posterior 90 % intervals"
+                                                if intervals else "") + ".",
+                    lambda: fg.effectiveness_figure(geometry=geometry, order=order,
+                                                    runs=pts_eta, intervals=intervals,
+                                                    note=note),
+                    "effectiveness factor against Thiele modulus")
+    if b:
+        blocks.append(b)
+    if post_runs:
+        blocks.append(_regime_probability(rb, post_runs))
+    blocks += _kinetics_blocks(rb, diag)
+    blocks += _diagnosis_blocks(rb, diag)
+    return Section("transport", "Transport diagnosis", tuple(blocks))
+
+def _order(rb: ReportBuilder) -> float:
+    p = rb.res.parameters.get("order")
+    if p and p.get("estimate") is not None:
+        return float(p["estimate"])
+    orders = [float(r["order"]) for r in rb.res.runs.values()
+              if isinstance(r.get("order"), int | float)]
+    return float(np.median(orders)) if orders else 1.0
+
+def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Table:
+    rows: list[Sequence[str]] = []
+    tones: list[list[str | None]] = []
+    for rid, pr in post_runs.items():
+        prob = pr.get("regime_probability") or {}
+        best = max(prob, key=lambda k: prob.get(k) or 0.0) if prob else None
+        rows.append([rid] + [fmt(prob.get(g), 3) for g in REGIMES])
+        tone: list[str | None] = [None]
+        tones.append(tone + [g if g == best else None for g in REGIMES])
+    return rb.table("Posterior probability of each regime per run (share of the "
+                      "evaluated draws).", ["run", *REGIMES], rows, tones=tones,
+                      numeric=(False,) + (True,) * len(REGIMES))
+
+def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
+    params, m = rb.res.parameters, rb.res.model
+    k_ref, ea = params.get("k_ref"), params.get("activation_energy")
+    t_ref = get_path(m, "rate_law_options", "reference_temperature")
+    if not (k_ref and ea and t_ref and k_ref.get("estimate") and
+            ea.get("estimate") is not None):
+        return []
+    blocks: list[Any] = [Heading("Intrinsic and apparent kinetics")]
+    cov = None
+    names = list(get_path(rb.res.correlation, "names", default=[]) or [])
+    c = np.asarray(get_path(rb.res.extras, "covariance", default=[]) or [], dtype=float)
+    if "k_ref" in names and "activation_energy" in names and c.shape == (len(names),) * 2:
+        i, j = names.index("k_ref"), names.index("activation_energy")
+        cov = c[np.ix_([i, j], [i, j])]
+    per_run = []
+    c_ref = get_path(m, "rate_law_options", "reference_concentration")
+    if m.get("rate_law") == "power" and c_ref:
+        n = _order(rb)
+        for run in rb.inp.study.runs:
+            r = rb.res.runs.get(run.id, {})
+            rate = r.get("observed_rate")
+            if isinstance(rate, int | float) and rate > 0:
+                per_run.append((run.id, run.temperature,
+                                rate / (run.initial_concentration / c_ref) ** n,
+                                rb.regimes[run.id]))
+    fals = diag.get("falsified") or {}
+    apparent = [(float(p["temperature"]), float(p["k_apparent"]))
+                for p in fals.get("per_temperature") or []
+                if isinstance(p, Mapping) and isinstance(p.get("temperature"), int | float)
+                and isinstance(p.get("k_apparent"), int | float)]
+    temps = [r.temperature for r in rb.inp.study.runs]
+    b = rb.figure("arrhenius", "Arrhenius plot: intrinsic k(T) from k_ref and E_a (line, "
+                    "95 % band by the delta method); each run's effective constant "
+                    "r_obs/(C₀/C_ref)^n at its initial conditions (markers by regime: below "
+                    "the line where transport slows the run)" + ("; apparent constants "
+                                                                "per temperature from "
+                                                                "the diagnosis (crosses)"
+                                                                if apparent else "") + ".",
+                    lambda: fg.arrhenius_figure(
+                        k_ref=float(k_ref["estimate"]), activation_energy=float(
+                            ea["estimate"]), reference_temperature=float(t_ref),
+                        temperatures=temps, k_unit=str(k_ref.get("unit", "")),
+                        covariance=cov, per_run=per_run, apparent=apparent),
+                    "Arrhenius plot")
+    if b:
+        blocks.append(b)
+    if fals:
+        facts = []
+        for key, label, scale, unit in (
+            ("intrinsic_activation_energy", "intrinsic E_a", 1e-3, "kJ/mol"),
+            ("apparent_activation_energy", "apparent E_a", 1e-3, "kJ/mol"),
+            ("intrinsic_order", "intrinsic order", 1.0, ""),
+            ("apparent_order", "apparent order", 1.0, ""),
+        ):
+            v = fals.get(key)
+            if isinstance(v, int | float):
+                facts.append((label, f"{fmt(v * scale)} {unit}".strip()))
+        ci = fals.get("apparent_activation_energy_ci95")
+        if isinstance(ci, list | tuple) and len(ci) == 2 and all(
+                isinstance(x, int | float) for x in ci):
+            facts.append(("apparent E_a, 95 %",
+                          fmt_interval([ci[0] * 1e-3, ci[1] * 1e-3]) + " kJ/mol"))
+        if facts:
+            blocks.append(Facts(tuple(facts)))
+        if fals.get("warnings"):
+            blocks.append(Items(tuple(map(str, fals["warnings"])), "warning"))
+    return blocks
+
+def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
+    blocks: list[Any] = []
+    tests = [t for t in diag.get("model_free") or [] if isinstance(t, Mapping)]
+    if tests or diag.get("not_possible"):
+        blocks.append(Heading("What the data show without a model"))
+    if tests:
+        rows: list[Sequence[str]] = []
+        tones: list[list[str | None]] = []
+        for t in tests:
+            vals = t.get("values") or []
+            factor = str(t.get("factor", ""))
+            vtext = " vs ".join(factor_text(factor, v) if factor in FACTOR_LABEL and
+                                isinstance(v, int | float) else str(v) for v in vals)
+            rows.append((factor, ", ".join(map(str, t.get("runs") or [])), vtext,
+                         str(t.get("test", "")), fmt(t.get("statistic"), 4),
+                         str(t.get("df", "")), fmt_p(t.get("p_value")),
+                         fmt(t.get("different")) if t.get("different") is not None else "–",
+                         str(t.get("conclusion", ""))))
+            diff = t.get("different")
+            tone: list[str | None] = [None] * 7
+            tone += [None if diff is None else ("fail" if diff else "ok"), None]
+            tones.append(tone)
+        blocks.append(rb.table("Model-free tests: runs that differ in one factor only, "
+                                 "compared with a test that accounts for noise.",
+                                 ("factor", "runs", "levels", "test", "statistic", "df",
+                                  "p", "different", "conclusion"), rows, tones=tones,
+                                 numeric=(False,) * 4 + (True,) * 3 + (False, False)))
+    impossible = [f"{d.get('factor', '')}: {d.get('message', '')}"
+                  for d in diag.get("not_possible") or [] if isinstance(d, Mapping)]
+    if impossible:
+        blocks.append(Items(tuple(impossible), "note"))
+    nxt = [d for d in diag.get("next_runs") or [] if isinstance(d, Mapping)]
+    if nxt:
+        next_rows = [(fmt(d.get("temperature"), 5), fmt((d.get("stirrer_speed") or 0) * 60, 4)
+                 if isinstance(d.get("stirrer_speed"), int | float) else "–",
+                 fmt((d.get("particle_diameter") or 0) * 1e6, 4)
+                 if isinstance(d.get("particle_diameter"), int | float) else "–",
+                 str(d.get("note", ""))) for d in nxt]
+        blocks.append(Heading("Runs that would make the data intrinsic"))
+        blocks.append(rb.table("Suggested conditions (from the diagnosis).",
+                                 ("T [K]", "N [rpm]", "d_p [µm]", "note"), next_rows,
+                                 numeric=(True, True, True, False)))
+    return blocks
+
+def posterior_section(rb: ReportBuilder) -> Section | None:
+    """The posterior: sampler settings, convergence, summary, corner plot and traces."""
+    post, draws = rb.inp.posterior, rb.inp.draws
+    if not post and draws is None:
+        return None
+    blocks: list[Any] = []
+    sampler = (post or {}).get("sampler") or {}
+    conv = (post or {}).get("convergence") or {}
+    if sampler:
+        keys = ("walkers", "steps", "burn_in", "thin", "seed", "stopped_by", "tau_multiple")
+        blocks.append(Facts(tuple((k.replace("_", " "), str(sampler[k])) for k in keys
+                                  if k in sampler)))
+    if conv:
+        ok = bool(conv.get("converged"))
+        reasons = "; ".join(map(str, conv.get("reasons") or []))
+        blocks.append(Text(("The chain converged" if ok else "The chain did NOT converge")
+                           + (f": {reasons}" if reasons else "") +
+                           (f" (acceptance fraction {fmt(conv.get('acceptance_fraction'), 3)})"
+                            if conv.get("acceptance_fraction") is not None else "") + ".",
+                           "ok" if ok else "warning"))
+        tau = conv.get("tau") or {}
+        if tau:
+            blocks.append(Facts(tuple((f"τ {k}", fmt(v, 3)) for k, v in tau.items())))
+    summary = (post or {}).get("parameters") or {}
+    if summary:
+        rows = [(n, fg.pretty_unit(rb.units.get(n, "")), fmt(q.get("median")),
+                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi94")),
+                 fmt(q.get("rhat"), 4), fmt(q.get("ess"), 3)) for n, q in summary.items()
+                if isinstance(q, Mapping)]
+        blocks.append(rb.table("Posterior summary: median, central 90 % interval, 94 % "
+                                 "highest-density interval, R-hat and effective sample "
+                                 "size.", ("quantity", "unit", "median", "5–95 %",
+                                           "HDI 94 %", "R-hat", "ESS"), rows,
+                                 numeric=(False, False) + (True,) * 5))
+    if draws is not None:
+        names = [c for c in draws.columns if c not in ("step", "walker", "log_prob",
+                                                       "chain", "draw")
+                 and pd.api.types.is_numeric_dtype(draws[c])]
+        shown = names[:8]
+        if len(names) > len(shown):
+            rb.notes.append(f"corner plot shows the first 8 of {len(names)} quantities")
+        est = {n: float(p["estimate"]) for n, p in rb.res.parameters.items()
+               if p.get("estimate") is not None}
+        est.update({k: float(v) for k, v in (rb.res.fit.get("error_scales") or {}).items()})
+        if shown:
+            for key, cap, make, alt in (
+                ("posterior_corner", "Posterior draws: marginal histograms (median and "
+                 "5–95 % dotted) and pairwise densities; red lines mark the least-squares "
+                 "estimate.", lambda: fg.corner_figure(draws, shown, units=rb.units,
+                                                      estimates=est), "corner plot"),
+                ("posterior_traces", "Traces of the kept chain (one line per walker).",
+                 lambda: fg.trace_figure(draws, shown, units=rb.units), "traces"),
+            ):
+                b = rb.figure(key, cap, make, alt)
+                if b:
+                    blocks.append(b)
+    return Section("posterior", "Posterior", tuple(blocks))
