@@ -221,7 +221,21 @@ def _criteria_arguments(p: argparse.ArgumentParser) -> None:
     add_criteria_arguments(p)
 
 
+def _cmd_report(args: argparse.Namespace) -> int:
+    from kinfit.report import run_report_command
+
+    return run_report_command(args)
+
+
+def _report_arguments(p: argparse.ArgumentParser) -> None:
+    from kinfit.report import add_report_arguments
+
+    add_report_arguments(p)
+
+
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
+               _cmd_report),
     "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
                  _cmd_diagnose),
     "criteria": ("transport criteria for one measurement, no fitting", _cmd_criteria),
@@ -267,6 +281,7 @@ _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
     "run": _run_arguments,
     "diagnose": _diagnose_arguments,
     "criteria": _criteria_arguments,
+    "report": _report_arguments,
 }
 
 

@@ -80,6 +80,16 @@ class FitOptions:
                              f"'group'. Got {self.bootstrap_kind!r} instead.")
 
 
+def _film_options(film: Any) -> dict[str, Any]:
+    """The film model's plain options (reference speed and diameter, SI) for the record."""
+    out = dict(getattr(film, "options", {}) or {})
+    for key in ("reference_speed", "reference_diameter", "power_number", "impeller_diameter",
+                "liquid_volume", "slip_velocity", "superficial_velocity", "correlation"):
+        if hasattr(film, key) and key not in out:
+            out[key] = getattr(film, key)
+    return {k: v for k, v in out.items() if isinstance(v, int | float | str)}
+
+
 def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
     law = spec.rate_law
     return {
@@ -87,7 +97,7 @@ def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
         "rate_law": law.name,
         "rate_law_options": getattr(law, "options", {}),
         "film": spec.film.name,
-        "film_options": getattr(spec.film, "options", {}),
+        "film_options": _film_options(spec.film),
         "pellet": spec.pellet,
         "geometry": spec.geometry,
         "particle_density": spec.particle_density,

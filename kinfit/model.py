@@ -101,8 +101,10 @@ class ModelSpec:
         options = {k: v for k, v in kin.items() if k not in ("rate_law",)}
         law = make_rate_law(law_name, **options)
         film_sec = dict(study.film)
-        film_name = film or film_sec.pop("model", "agitation")
-        film_sec.pop("model", None)
+        study_film = film_sec.pop("model", "agitation")
+        film_name = film or study_film
+        if film_name != study_film:  # another film model: the study's options are not its own
+            film_sec = {}
         if film_name == "agitation":
             film_sec.setdefault("reference_speed", _geomean([r.stirrer_speed for r in study.runs]))
             film_sec.setdefault("reference_diameter",

@@ -32,8 +32,7 @@ class NaivePellet:
     def __init__(self, k_v: float, n: float, De: float, R: float, C_ref: float) -> None:
         self.k_v, self.n, self.De, self.R, self.C_ref = k_v, n, De, R, C_ref
         phi = R * np.sqrt(k_v / (De * C_ref))
-        self.r = R * (1.0 - np.geomspace(1.0, 1e-6, 120)[::-1] + 1e-6)  # clustered at R
-        self.r[0] = 0.0
+        self.r = np.append(R * (1.0 - np.geomspace(1.0, 1e-6, 120)), R)  # clustered at R
         self.guess = np.vstack([np.exp(-phi * (1.0 - self.r / R)),
                                 phi / R * np.exp(-phi * (1.0 - self.r / R))])
         self.last_cs = 1.0
