@@ -1,0 +1,236 @@
+"""`kinfit plan`: the recommended particle diameter and stirrer speed meet the Weisz-Prater and
+Carberry limits by the first-order closed forms, the D-optimal choice beats random choices and
+an exhaustive search on a small case, and the campaign's information reproduces the fit's
+linearised covariance."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import warnings
+from itertools import combinations_with_replacement
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from kinfit.fitting import FitOptions, fit
+from kinfit.model import Model
+from kinfit.plan import (
+    _logdet,
+    add_plan_arguments,
+    d_optimal,
+    information,
+    plan_runs,
+    run_plan_command,
+)
+from kinfit.predict import load_fitted
+from kinfit.study import load_study
+
+STUDY = """\
+[data]
+runs = "runs.csv"
+observations = "obs.csv"
+[catalyst]
+geometry = "sphere"
+particle_density = "1500 kg/m^3"
+[kinetics]
+rate_law = "power"
+reference_temperature = "60 degC"
+[film]
+model = "agitation"
+reference_speed = "600 rpm"
+reference_diameter = "100 um"
+[pellet]
+diffusivity = "direct"
+[parameters.k_ref]
+value = "0.05 mol/(kg*s)"
+[parameters.activation_energy]
+value = "70 kJ/mol"
+[parameters.order]
+value = 1.0
+vary = false
+[parameters.effective_diffusivity]
+value = "2e-10 m^2/s"
+vary = false
+[parameters.kc_ref]
+value = "5e-5 m/s"
+[parameters.agitation_exponent]
+value = 0.5
+vary = false
+[parameters.size_exponent]
+value = 0.5
+vary = false
+"""
+ROWS = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (50, 200)]
+R_GAS, RHO, DE = 8.314462618, 1500.0, 2e-10
+
+
+@pytest.fixture(scope="module")
+def fitted_campaign(tmp_path_factory):
+    """A first-order campaign with film and pore resistance, made with kinfit's physics at the
+    values above plus seeded noise (sigma 3 mol/m^3), fitted without profiles."""
+    folder = tmp_path_factory.mktemp("plan")
+    (folder / "study.toml").write_text(STUDY)
+    runs = ["run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
+            "catalyst_loading [g/L],initial_concentration [mol/L]"]
+    runs += [f"R{i + 1}," + ",".join(map(str, r)) for i, r in enumerate(ROWS)]
+    (folder / "runs.csv").write_text("\n".join(runs) + "\n")
+    times = np.linspace(0, 120, 8)
+    obs = ["run,time [min],concentration [mol/m^3]"]
+    obs += [f"R{i + 1},{t:g},500" for i in range(len(ROWS)) for t in times]
+    (folder / "obs.csv").write_text("\n".join(obs) + "\n")
+    study = load_study(folder / "study.toml")
+    from kinfit.fitting import main_spec
+
+    model = Model(main_spec(study), study)
+    y = model.predict(model.x0[None, :])[0]
+    y = y + np.random.default_rng(4).normal(0.0, 3.0, y.size)
+    ids = np.asarray(model.run_ids)[model.run_index]
+    lines = ["run,time [min],concentration [mol/m^3]"]
+    lines += [f"{r},{t / 60:.8g},{c:.8g}" for r, t, c in zip(ids, model.times, y, strict=True)]
+    (folder / "obs.csv").write_text("\n".join(lines) + "\n")
+    study = load_study(folder / "study.toml")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = fit(study, FitOptions(profile=False))
+    assert res.converged
+    res.save(folder / "fit")
+    return folder, study, res
+
+
+@pytest.fixture(scope="module")
+def plan(fitted_campaign):
+    _, study, res = fitted_campaign
+    return plan_runs(study, res, n_runs=3, seed=0, n_random=30)
+
+
+def _first_order(est, T, N, dp):
+    """k1, eta, Psi_L and the film conductance of a first-order sphere (Aris 1957)."""
+    k1 = est["k_ref"] * math.exp(-est["activation_energy"] / R_GAS * (1 / T - 1 / 333.15)) / 1e3
+    phi = dp / 6 * math.sqrt(k1 * RHO / DE)
+    eta = (1 / phi) * (1 / math.tanh(3 * phi) - 1 / (3 * phi))
+    kc = est["kc_ref"] * (N / 10.0) ** 0.5 * (dp / 100e-6) ** -0.5
+    return k1, eta, eta * phi**2, kc * 6 / (RHO * dp)
+
+
+def test_recommended_diameter_meets_weisz_prater(fitted_campaign, plan):
+    # first order: Psi_L = eta phi_L^2 whatever the film does (Weisz & Prater 1954; Aris
+    # normalisation); limit 0.3 (L/R)^2 = 0.3/9 for a sphere (kinfit.criteria)
+    _, study, res = fitted_campaign
+    dp = plan.tests["recommended"]["particle_diameter"]
+    assert dp is not None and 1e-6 < dp < 200e-6
+    est = res.estimates()
+    psi = [_first_order(est, r.temperature, r.stirrer_speed, dp)[2] for r in study.runs]
+    assert max(psi) < 0.3 / 9
+    # and it is the boundary, not merely some small size: 3 % larger particles fail
+    psi_up = [_first_order(est, r.temperature, r.stirrer_speed, 1.03 * dp)[2]
+              for r in study.runs]
+    assert max(psi_up) > 0.3 / 9
+
+
+def test_recommended_speed_meets_carberry(fitted_campaign, plan):
+    # first order: Ca = 1 - Cs/Cb = k_obs/(kc a_m), 1/k_obs = 1/(kc a_m) + 1/(eta k1)
+    # (Carberry 1976); limit 0.05/|n| = 0.05
+    _, study, res = fitted_campaign
+    rec = plan.tests["recommended"]
+    dp, N = rec["particle_diameter"], rec["carberry_speed"]
+    assert N is not None
+    est = res.estimates()
+
+    def carberry(speed):
+        out = []
+        for r in study.runs:
+            k1, eta, _, ka = _first_order(est, r.temperature, speed, dp)
+            out.append((1 / (1 / ka + 1 / (eta * k1))) / ka)
+        return max(out)
+
+    assert carberry(N) < 0.05
+    if N > 10.5 / 60:  # above the searched range's lower end the speed is a boundary
+        assert carberry(0.97 * N) > 0.05
+    assert rec["stirrer_speed"] >= min(r.stirrer_speed for r in study.runs)
+
+
+def test_d_optimal_beats_random_choices(plan):
+    # D-optimality: larger det of the information (Kiefer & Wolfowitz 1959; Fedorov 1972)
+    d = plan.design
+    print(f"log det: campaign {d['logdet_before']:.4f}, D-optimal {d['logdet_after']:.4f}, "
+          f"random mean {d['random']['mean']:.4f}, best random {d['random']['max']:.4f}")
+    assert d["logdet_after"] > d["logdet_before"]
+    assert d["logdet_after"] > d["random"]["max"]
+    for name, s in plan.shrinkage.items():
+        assert s["half_width_after"] <= s["half_width_before"] * (1 + 1e-9), name
+
+
+def test_exchange_reaches_the_enumerated_optimum():
+    # exhaustive search over all choices of k = 3 from 9 candidates (with repeats) as the
+    # reference for the greedy + Fedorov exchange algorithm (Fedorov 1972)
+    rng = np.random.default_rng(2)
+    p, K, k = 3, 9, 3
+    vecs = rng.normal(size=(K, p)) * np.array([1.0, 0.3, 3.0])
+    cands = vecs[:, :, None] * vecs[:, None, :]
+    m0 = 0.05 * np.eye(p)
+    best = max(float(_logdet(m0 + cands[list(c)].sum(axis=0)))
+               for c in combinations_with_replacement(range(K), k))
+    chosen, ld = d_optimal(m0, cands, k)
+    assert ld == pytest.approx(best, rel=1e-12)
+    assert float(_logdet(m0 + cands[chosen].sum(axis=0))) == pytest.approx(ld, rel=1e-12)
+
+
+def test_campaign_information_reproduces_fit_covariance(fitted_campaign):
+    # Cov = sigma^2 (J'WJ)^-1 (Bates & Watts 1988, ch. 2): the inverse of the campaign's Fisher
+    # information (forward differences) against the fit's covariance (central differences)
+    _, study, res = fitted_campaign
+    fitted = load_fitted(study, res)
+    m0 = information(fitted).sum(axis=0)
+    se_plan = np.sqrt(np.diag(np.linalg.inv(m0)))
+    se_fit = np.sqrt(np.diag(fitted.internal_covariance()))
+    np.testing.assert_allclose(se_plan, se_fit, rtol=0.02)
+
+
+def test_agitation_speeds_differ_beyond_noise(fitted_campaign, plan):
+    # the speed reported for a run changes its predicted profile by more than
+    # 1.96 sqrt(2) sigma at some sampling time (two noisy measurements; common practice)
+    _, study, res = fitted_campaign
+    fitted = load_fitted(study, res)
+    sigma = res.fit["sigma"]
+    checked = 0
+    for rid, r in plan.tests["runs"].items():
+        N = r["speed_difference_below"]
+        if N is None:
+            continue
+        run = study.run(rid)
+        from kinfit.predict import Condition
+
+        own = Condition("own", run.temperature, run.stirrer_speed, run.particle_diameter,
+                        run.catalyst_loading, run.initial_concentration)
+        low = Condition("low", run.temperature, N, run.particle_diameter,
+                        run.catalyst_loading, run.initial_concentration)
+        model = fitted.model_at([own, low], times=[run.times, run.times])
+        f = model.predict(fitted.theta_for(model, fitted.theta))[0]
+        n = run.times.size
+        assert np.max(np.abs(f[:n] - f[n:2 * n])) > 1.96 * math.sqrt(2) * sigma
+        checked += 1
+    assert checked > 0
+
+
+def test_plan_command_writes_a_runs_table(fitted_campaign, plan):
+    folder, study, _ = fitted_campaign
+    parser = argparse.ArgumentParser()
+    add_plan_arguments(parser)
+    out = folder / "plan_out"
+    args = parser.parse_args([str(folder / "study.toml"), "--fit", str(folder / "fit"),
+                              "--runs", "2", "--speeds", "300, 600, 900 rpm", "--out", str(out)])
+    assert run_plan_command(args) == 0
+    data = json.loads((out / "plan.json").read_text())
+    assert len(data["runs"]) == 2
+    assert set(data["design"]["grid"]["stirrer_speed"]) == {5.0, 10.0, 15.0}
+    table = pd.read_csv(out / "plan_runs.csv")
+    assert list(table.columns[:6]) == ["run", "temperature [degC]", "stirrer_speed [rpm]",
+                                       "particle_diameter [um]", "catalyst_loading [g/L]",
+                                       "initial_concentration [mol/L]"]
+    for row, run in zip(table.itertuples(index=False), data["runs"], strict=True):
+        assert row[1] + 273.15 == pytest.approx(run["temperature"])
+        assert row[2] / 60 == pytest.approx(run["stirrer_speed"])
+    assert (out / "plan.md").read_text().startswith("# Next runs")
