@@ -197,48 +197,39 @@ def _run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 
-def _cmd_diagnose(args: argparse.Namespace) -> int:
-    from kinfit.diagnostics import run_diagnose_command
+def _lazy(module: str, function: str) -> Callable[[argparse.Namespace], int]:
+    """A command implemented in another module, imported only when it runs."""
 
-    return run_diagnose_command(args)
+    def run(args: argparse.Namespace) -> int:
+        from importlib import import_module
 
+        return int(getattr(import_module(module), function)(args))
 
-def _cmd_criteria(args: argparse.Namespace) -> int:
-    from kinfit.calculator import run_criteria_command
-
-    return run_criteria_command(args)
-
-
-def _diagnose_arguments(p: argparse.ArgumentParser) -> None:
-    from kinfit.diagnostics import add_diagnose_arguments
-
-    add_diagnose_arguments(p)
+    return run
 
 
-def _criteria_arguments(p: argparse.ArgumentParser) -> None:
-    from kinfit.calculator import add_criteria_arguments
+def _lazy_arguments(module: str, function: str) -> Callable[[argparse.ArgumentParser], None]:
+    def add(p: argparse.ArgumentParser) -> None:
+        from importlib import import_module
 
-    add_criteria_arguments(p)
+        getattr(import_module(module), function)(p)
 
-
-def _cmd_report(args: argparse.Namespace) -> int:
-    from kinfit.report import run_report_command
-
-    return run_report_command(args)
-
-
-def _report_arguments(p: argparse.ArgumentParser) -> None:
-    from kinfit.report import add_report_arguments
-
-    add_report_arguments(p)
+    return add
 
 
 COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
+    "audit": ("audit claimed kinetics against transport criteria and data",
+              _lazy("kinfit.audit", "run_audit_command")),
+    "predict": ("predict profiles or rates at new conditions, with bands",
+                _lazy("kinfit.predict", "run_predict_command")),
+    "plan": ("propose the next runs: transport tests and a D-optimal design",
+             _lazy("kinfit.plan", "run_plan_command")),
     "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
-               _cmd_report),
+               _lazy("kinfit.report", "run_report_command")),
     "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
-                 _cmd_diagnose),
-    "criteria": ("transport criteria for one measurement, no fitting", _cmd_criteria),
+                 _lazy("kinfit.diagnostics", "run_diagnose_command")),
+    "criteria": ("transport criteria for one measurement, no fitting",
+                 _lazy("kinfit.calculator", "run_criteria_command")),
     "run": ("the whole job on a study: check, fit, sample, diagnose, report", _cmd_run),
     "sample": ("sample the posterior from the fit's optimum (emcee)", _cmd_sample),
     "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", _cmd_fit),
@@ -279,9 +270,12 @@ _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
     "fit": _fit_arguments,
     "sample": _sample_arguments,
     "run": _run_arguments,
-    "diagnose": _diagnose_arguments,
-    "criteria": _criteria_arguments,
-    "report": _report_arguments,
+    "diagnose": _lazy_arguments("kinfit.diagnostics", "add_diagnose_arguments"),
+    "criteria": _lazy_arguments("kinfit.calculator", "add_criteria_arguments"),
+    "report": _lazy_arguments("kinfit.report", "add_report_arguments"),
+    "audit": _lazy_arguments("kinfit.audit", "add_audit_arguments"),
+    "predict": _lazy_arguments("kinfit.predict", "add_predict_arguments"),
+    "plan": _lazy_arguments("kinfit.plan", "add_plan_arguments"),
 }
 
 

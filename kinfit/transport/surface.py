@@ -193,9 +193,11 @@ def solve_surface(
     SolverError
         If some points do not converge in ``maxiter`` iterations.
     """
-    Cb = np.asarray(Cb, dtype=float)
-    kf = np.broadcast_to(np.asarray(conductance, dtype=float), Cb.shape)
-    ceq = np.broadcast_to(np.asarray(C_eq, dtype=float), Cb.shape)
+    conductance = np.asarray(conductance, dtype=float)
+    shape = np.broadcast_shapes(np.shape(Cb), conductance.shape, np.shape(C_eq))
+    Cb = np.broadcast_to(np.asarray(Cb, dtype=float), shape)
+    kf = np.broadcast_to(conductance, shape)
+    ceq = np.broadcast_to(np.asarray(C_eq, dtype=float), shape)
     lo = np.minimum(ceq, Cb)
     hi = np.maximum(ceq, Cb)
     nofilm = ~np.isfinite(kf)
