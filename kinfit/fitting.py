@@ -11,7 +11,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from kinfit.criteria import Thresholds
 from kinfit.errors import StudyError
@@ -195,7 +194,8 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
         "-2 ln L = n [ln(2 pi SSE/n) + 1] (constant error); k = parameters + error scales",
     }
     if prof is not None and prof.better_optimum:
-        fit_block["message"] += "; profiling found a lower SSE than the fit (not at the minimum)"
+        fit_block["message"] = (f"{est.message}; profiling found a lower SSE than the fit "
+                                "(not at the minimum)")
     pred = point_table(model, est.x, np.asarray(est.fitted))
     obs_col = "concentration" if spec.reactor == "batch" else "rate"
     pred.insert(2, f"observed_{obs_col}", model.y)

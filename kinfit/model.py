@@ -306,7 +306,7 @@ class Model:
                 raise ModelError(f"parameter 'tortuosity' must be > 0, got {float(np.min(tau)):g}")
             Dm = (spec.molecular_diffusivity if spec.molecular_diffusivity
                   else spec.fluid.diffusivity(T))
-            De = spec.porosity * Dm / tau
+            De = float(spec.porosity or 0.0) * Dm / tau
         pr = PelletRate(spec.rate_law, law_p, T, C0, De, run(self.L), spec.particle_density,
                         spec.geometry)
         return pr, conductance, kc, De

@@ -98,7 +98,8 @@ def manifest(*, files: Mapping[str, str] | None = None, seed: int | None = None,
     """The reproducibility manifest: input hashes, versions, seed and command line."""
     from kinfit import __version__
 
-    versions = {"kinfit": __version__, "python": platform.python_version()}
+    versions: dict[str, str | None] = {"kinfit": __version__,
+                                       "python": platform.python_version()}
     for lib in _LIBRARIES:
         try:
             versions[lib] = metadata.version(lib)

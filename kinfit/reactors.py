@@ -61,7 +61,7 @@ class BatchGrid:
         self.k = k
 
 
-def _panel_time(coef: Array, tau: Array) -> Array:
+def _panel_time(coef: Array, tau: Array) -> tuple[Array, Array]:
     """Integral of the panel polynomial from 0 to tau (per unit |du|), and its integrand."""
     k = coef.shape[-1]
     powers = np.arange(1, k + 1)

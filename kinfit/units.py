@@ -8,17 +8,20 @@ with magnitude and unit apart so they convert correctly.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
 
+import numpy as np
 import pint
 
 from kinfit.errors import StudyError
 
-__all__ = ["QUANTITY_KINDS", "SI_UNIT", "parse_quantity", "parse_header", "to_si", "ureg"]
+__all__ = ["QUANTITY_KINDS", "SI_UNIT", "parse_quantity", "parse_header", "to_si", "ureg",
+           "printable"]
 
-ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 ureg.define("rps = revolution / second")
 
 #: Kinds of quantity kinfit reads, with the SI unit it stores and the dimensionality pint checks.
@@ -62,6 +65,25 @@ class Header:
     unit: str | None
 
 
+def printable(text: object, *, limit: int = 80) -> str:
+    """User text made safe for a one-line message: non-printable characters (newlines, tabs,
+    control and separator characters) escaped as ``\\n``, ``\\x0b``, ``\\u2028``, and text longer
+    than ``limit`` characters cut with an ellipsis.
+
+    Examples
+    --------
+    >>> printable("mol/L\\nK")
+    'mol/L\\\\nK'
+    >>> printable("x" * 100, limit=10)
+    'xxxxxxxxx…'
+    """
+    s = str(text)
+    if len(s) > limit:
+        s = s[: limit - 1] + "\u2026"
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                   for c in s)
+
+
 @lru_cache(maxsize=512)
 def _unit(text: str) -> pint.Unit:
     text = text.strip()
@@ -74,10 +96,12 @@ def _factor(unit_text: str, kind: str, where: str) -> tuple[float, float]:
     si, dim = QUANTITY_KINDS[kind]
     try:
         unit = _unit(unit_text)
-    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError,
-            AttributeError, TypeError, ValueError, AssertionError) as exc:
+    except Exception as exc:  # noqa: BLE001 - pint's parser raises many types for bad text
+        # (UndefinedUnitError, DefinitionSyntaxError, TokenError for "(", ZeroDivisionError
+        # for "1/0", AttributeError, TypeError, ValueError, AssertionError, RecursionError)
         raise StudyError(
-            f"{where}: unit '{unit_text}' is not recognised ({exc.__class__.__name__}); "
+            f"{where}: unit '{printable(unit_text)}' is not recognised "
+            f"({exc.__class__.__name__}); "
             f"write a {kind} unit such as '{_EXAMPLE[kind]}'"
         ) from None
     if kind == "speed" and _ANGLES & {str(name) for name in unit._units}:
@@ -86,7 +110,7 @@ def _factor(unit_text: str, kind: str, where: str) -> tuple[float, float]:
         target = _unit(si)
     if unit.dimensionality != target.dimensionality:
         raise StudyError(
-            f"{where}: unit '{unit_text}' is not a {kind} unit (it is "
+            f"{where}: unit '{printable(unit_text)}' is not a {kind} unit (it is "
             f"{unit.dimensionality or 'dimensionless'}); write a unit such as '{_EXAMPLE[kind]}'"
         )
     q0 = ureg.Quantity(0.0, unit).to(target).magnitude
@@ -139,7 +163,8 @@ def to_si(values, unit_text: str, kind: str, *, where: str = "value"):
     if kind not in QUANTITY_KINDS:
         raise KeyError(kind)
     scale, offset = _factor(unit_text, kind, where)
-    return values * scale + offset
+    with np.errstate(over="ignore", invalid="ignore"):  # overflow to inf: callers test finiteness
+        return values * scale + offset
 
 
 def parse_quantity(text: object, kind: str, *, where: str = "value") -> float:
@@ -158,9 +183,16 @@ def parse_quantity(text: object, kind: str, *, where: str = "value") -> float:
         raise StudyError(f"{where}: expected a {kind} such as '{_example_value(kind)}', got {text}")
     if isinstance(text, int | float):
         if kind == "dimensionless":
-            return float(text)
+            try:
+                number = float(text)
+            except OverflowError:  # an integer beyond double precision
+                number = math.inf
+            if not math.isfinite(number):
+                raise StudyError(f"{where}: {printable(text, limit=40)} is not a finite number")
+            return number
         raise StudyError(
-            f"{where}: the number {text} has no unit; write it as a string with its unit, "
+            f"{where}: the number {printable(text, limit=40)} has no unit; write it as a "
+            "string with its unit, "
             f"for example \"{_example_value(kind)}\""
         )
     if not isinstance(text, str):
@@ -171,18 +203,18 @@ def parse_quantity(text: object, kind: str, *, where: str = "value") -> float:
     m = _NUMBER.match(text)
     if not m:
         raise StudyError(
-            f"{where}: cannot read '{text}' as a number with a unit; "
+            f"{where}: cannot read '{printable(text)}' as a number with a unit; "
             f"write it like \"{_example_value(kind)}\""
         )
     magnitude = float(m.group(1))
     unit_text = m.group(2)
     if not unit_text and kind != "dimensionless":
         raise StudyError(
-            f"{where}: '{text}' has no unit; write it like \"{_example_value(kind)}\""
+            f"{where}: '{printable(text)}' has no unit; write it like \"{_example_value(kind)}\""
         )
     value = float(to_si(magnitude, unit_text, kind, where=where))
     if value != value or value in (float("inf"), float("-inf")):
-        raise StudyError(f"{where}: '{text}' is not a finite number")
+        raise StudyError(f"{where}: '{printable(text)}' is not a finite number (in SI units)")
     return value
 
 
@@ -210,7 +242,7 @@ def parse_header(text: str, *, where: str) -> Header:
     m = _HEADER.match(str(text))
     if not m:
         raise StudyError(
-            f"{where}: column header '{text}' is not of the form 'name [unit]'; "
+            f"{where}: column header '{printable(text)}' is not of the form 'name [unit]'; "
             "write for example 'temperature [degC]'"
         )
     unit = m.group(2)
