@@ -12,7 +12,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from kinfit.errors import StudyError
-from kinfit.units import SI_UNIT, parse_quantity, ureg
+from kinfit.units import SI_UNIT, parse_quantity, printable, ureg
 
 __all__ = ["Parameter", "ParameterTable", "parameter_table_from_toml", "PARAMETER_KINDS",
            "SCOPES"]
@@ -154,13 +154,18 @@ def _value(raw: Any, name: str, key: str, kind: str | None, fname: str) -> tuple
     # a parameter of a user expression: a bare number is SI; a string converts to SI base units
     if isinstance(raw, bool) or not isinstance(raw, int | float | str):
         raise StudyError(f"{where}: expected a number or a quantity string, got {raw!r}")
-    if isinstance(raw, int | float):
-        return float(raw), "SI"
     try:
-        q = ureg.Quantity(raw).to_base_units()
-    except Exception:  # noqa: BLE001 - pint raises many types for bad strings
-        raise StudyError(f"{where}: cannot read '{raw}' as a quantity") from None
-    return float(q.magnitude), f"{q.units:~}" or "1"
+        if isinstance(raw, int | float):
+            value, unit = float(raw), "SI"
+        else:
+            q: Any = ureg.Quantity(raw).to_base_units()
+            value, unit = float(q.magnitude), f"{q.units:~}" or "1"
+    except Exception:  # noqa: BLE001 - pint raises many types for bad strings; float() of a
+        # huge integer raises OverflowError, of a complex magnitude TypeError
+        raise StudyError(f"{where}: cannot read '{printable(raw)}' as a finite quantity") from None
+    if not math.isfinite(value):
+        raise StudyError(f"{where}: {printable(raw)} is not a finite number; give a finite value")
+    return value, unit
 
 
 def parameter_table_from_toml(section: Mapping[str, Any], fname: str) -> ParameterTable:
@@ -174,6 +179,9 @@ def parameter_table_from_toml(section: Mapping[str, Any], fname: str) -> Paramet
     """
     params = []
     for name, spec in section.items():
+        if not name.isprintable():
+            raise StudyError(f"{fname}: parameter name '{printable(name)}' holds a non-printable "
+                             "character; retype it")
         if not isinstance(spec, Mapping):
             raise StudyError(
                 f"{fname}: [parameters.{name}] must be a table with at least 'value', "

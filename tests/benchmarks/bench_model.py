@@ -26,50 +26,55 @@ from kinfit.study import load_study  # noqa: E402
 
 
 class NaivePellet:
-    """Effectiveness factor of a sphere by solve_bvp (tol 1e-9) on c'' + 2c'/r = r_v(c)/De,
-    warm-started from the previous solution of the same run (the only concession to speed)."""
+    """Effectiveness factor of a sphere by solve_bvp (tol 1e-10) on the scaled pellet equation
+    y'' + (2/x) y' = phi2 y^n, y'(0) = 0, y(1) = 1, with y = c/Cs, x = r/R and
+    phi2 = R^2 k_v Cs^(n-1) / (De C_ref^n); eta = 3 y'(1) / phi2. Warm-started from the
+    previous solution of the same run (the only concession to speed)."""
 
     def __init__(self, k_v: float, n: float, De: float, R: float, C_ref: float) -> None:
         self.k_v, self.n, self.De, self.R, self.C_ref = k_v, n, De, R, C_ref
-        phi = R * np.sqrt(k_v / (De * C_ref))
-        self.r = np.append(R * (1.0 - np.geomspace(1.0, 1e-6, 120)), R)  # clustered at R
-        self.guess = np.vstack([np.exp(-phi * (1.0 - self.r / R)),
-                                phi / R * np.exp(-phi * (1.0 - self.r / R))])
-        self.last_cs = 1.0
+        self.x = np.append(1.0 - np.geomspace(1.0, 1e-5, 80), 1.0)  # clustered at the surface
+        self.y = None
+        self.last_phi2 = None
 
     def __call__(self, Cs: float) -> float:
         if Cs <= 0:
             return 1.0
-        k_v, n, De, R, C_ref = self.k_v, self.n, self.De, self.R, self.C_ref
+        n = self.n
+        phi2 = self.R**2 * self.k_v * Cs ** (n - 1.0) / (self.De * self.C_ref**n)
 
         def rhs(x, y):
-            c = np.maximum(y[0], 0.0)
-            src = k_v * (c / C_ref) ** n / De
+            src = phi2 * np.maximum(y[0], 0.0) ** n
             lap = np.where(x > 0, -2.0 * y[1] / np.maximum(x, 1e-300), 0.0)
             return np.vstack([y[1], np.where(x > 0, src + lap, src / 3.0)])
 
         def bc(ya, yb):
-            return np.array([ya[1], yb[0] - Cs])
+            return np.array([ya[1], yb[0] - 1.0])
 
-        y0 = self.guess * (Cs / self.last_cs)
-        sol = solve_bvp(rhs, bc, self.r, y0, tol=1e-9, max_nodes=100000)
+        if self.y is None or not 0.5 < phi2 / self.last_phi2 < 2.0:
+            # cold start from the large-modulus profile y = exp(-phi (1 - x))
+            self.x = np.append(1.0 - np.geomspace(1.0, 1e-5, 80), 1.0)
+            phi = np.sqrt(phi2 * (n + 1.0) / 2.0)
+            self.y = np.vstack([np.exp(-phi * (1.0 - self.x)), phi * np.exp(-phi * (1.0 - self.x))])
+        sol = solve_bvp(rhs, bc, self.x, self.y, tol=1e-10, max_nodes=200000)
+        self.last_phi2 = phi2
         if not sol.success:
-            raise RuntimeError(f"solve_bvp failed: {sol.message}")
-        self.r, self.guess, self.last_cs = sol.x, sol.y, Cs
-        # eta = surface flux x area / (volume x r_v(Cs)) = 3 De c'(R) / (R r_v(Cs))
-        return float(3.0 * De * sol.y[1, -1] / (R * k_v * (Cs / C_ref) ** n))
+            raise RuntimeError(f"solve_bvp failed at phi2 = {phi2:.3g}: {sol.message}")
+        self.x, self.y = sol.x, sol.y
+        return float(3.0 * sol.y[1, -1] / phi2)
 
 
-def naive_profiles(model: Model, theta: np.ndarray) -> np.ndarray:
+def naive_profiles(model: Model, theta: np.ndarray, runs: list[int] | None = None
+                   ) -> np.ndarray:
     """Nested reference: solve_ivp per run, a scalar root solve (brentq) of the surface
     concentration in every right-hand-side call, solve_bvp for eta in every root evaluation."""
     vals = {k: v[0] for k, v in model.expand(theta[None, :]).items()}
     spec = model.spec
     law = spec.rate_law
-    out = np.empty(model.n_obs)
+    out = np.full(model.n_obs, np.nan)
     rho = spec.particle_density
     C_ref = law.reference_concentration
-    for i in range(len(model.run_ids)):
+    for i in range(len(model.run_ids)) if runs is None else runs:
         T, N, dp, w = model.T[i], model.N[i], model.dp[i], model.w[i]
         k = float(law.rate(C_ref, T, {n: vals[n][i] for n in law.parameter_names}))
         n = float(vals["order"][i])
@@ -94,15 +99,29 @@ def naive_profiles(model: Model, theta: np.ndarray) -> np.ndarray:
 
 
 def main() -> None:
+    import argparse
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--runs", type=int, default=None,
+                        help="time the naive reference on every k-th run only and scale its "
+                        "time to the whole campaign (default: all runs)")
+    args = parser.parse_args()
     study = load_study(ROOT / "examples" / "demo" / "truth.toml")
     model = Model(ModelSpec.from_study(study), study)
     theta = model.x0
-    print(f"campaign: {len(model.run_ids)} runs, {model.n_obs} points, "
-          f"{len(theta)} parameters")
+    n_runs = len(model.run_ids)
+    print(f"campaign: {n_runs} runs, {model.n_obs} points, {len(theta)} parameters")
+    subset = None if args.runs is None else list(range(0, n_runs, max(1, n_runs // args.runs)))
     t0 = time.perf_counter()
-    ref = naive_profiles(model, theta)
+    ref = naive_profiles(model, theta, subset)
     t_naive = time.perf_counter() - t0
-    print(f"naive nested reference: {t_naive:.2f} s")
+    if subset is not None:
+        print(f"naive nested reference on runs {[model.run_ids[i] for i in subset]}: "
+              f"{t_naive:.1f} s, scaled to {n_runs} runs: {t_naive * n_runs / len(subset):.1f} s")
+        t_naive *= n_runs / len(subset)
+    else:
+        print(f"naive nested reference: {t_naive:.2f} s")
+    checked = np.isfinite(ref)
 
     model.predict(theta[None, :])  # warm up (pellet table load)
     reps = 20
@@ -117,14 +136,15 @@ def main() -> None:
     for _ in range(5):
         fast64 = model.predict(theta64)
     t64 = (time.perf_counter() - t0) / 5
-    diff = float(np.max(np.abs(fast - ref) / np.abs(ref)))
-    diff64 = float(np.max(np.abs(fast64[0] - ref) / np.abs(ref)))
+    rel = lambda a: np.abs(a[checked] - ref[checked]) / np.abs(ref[checked])  # noqa: E731
+    diff = float(max(np.max(rel(fast)), np.max(rel(fast64[0]))))
     print(f"kinfit, 1 parameter set: {t1 * 1e3:.3f} ms")
     print(f"kinfit, 64 parameter sets in one call: {t64 * 1e3:.2f} ms "
           f"({t64 / 64 * 1e3:.3f} ms per set)")
-    print(f"max relative difference to the reference: {max(diff, diff64):.2e}")
+    print(f"max relative difference to the reference over {int(checked.sum())} points: "
+          f"{diff:.2e}")
     print(f"speedup_1={t_naive / t1:.0f} speedup_64={t_naive / (t64 / 64):.0f} "
-          f"max_rel_diff={max(diff, diff64):.2e}")
+          f"max_rel_diff={diff:.2e}")
 
 
 if __name__ == "__main__":
