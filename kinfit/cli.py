@@ -64,13 +64,18 @@ def _fit_options(args: argparse.Namespace):
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
+    from dataclasses import replace
+
     from kinfit.fitting import fit
     from kinfit.outputs import prepare_out_dir
+    from kinfit.parallel import executor_from_args
     from kinfit.study import load_study
 
     study = load_study(args.study)
     out = prepare_out_dir(args.out)
-    result = fit(study, _fit_options(args), candidates=args.compare, argv=sys.argv)
+    with executor_from_args(args) as executor:
+        result = fit(study, replace(_fit_options(args), executor=executor),
+                     candidates=args.compare, argv=sys.argv)
     result.save(out)
     print(result.report())
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
@@ -93,6 +98,9 @@ def _fit_arguments(p: argparse.ArgumentParser) -> None:
                    help="resample whole runs instead of residuals")
     p.add_argument("--compare", nargs="+", default=None, metavar="CANDIDATE",
                    help="candidate models RATE_LAW[/FILM[/PELLET]] to compare with the study's")
+    from kinfit.parallel import add_parallel_arguments
+
+    add_parallel_arguments(p)
     p.add_argument("--max-nfev", type=int, default=None, metavar="N",
                    help="cap on function evaluations of the optimiser")
     p.add_argument("--quiet", action="store_true", help="no progress bars")

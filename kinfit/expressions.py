@@ -20,6 +20,7 @@ larger than :data:`MAX_EXPONENT` in magnitude.
 from __future__ import annotations
 
 import ast
+import warnings
 import math
 from collections.abc import Callable, Collection, Mapping
 from dataclasses import dataclass
@@ -571,7 +572,9 @@ def compile_expression(
             raise StudyError(f"rate expression constant '{key}' must be finite, got {value!r}")
     allowed = None if allowed_names is None else frozenset(allowed_names)
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        with warnings.catch_warnings():  # a SyntaxWarning must not reach stderr
+            warnings.simplefilter("ignore")
+            tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
         raise StudyError(
             f"rate expression {text!r} is not valid arithmetic: {exc.msg} at column {exc.offset}"

@@ -293,9 +293,12 @@ def fit(study: Study, options: FitOptions | None = None, *,
         return result
     from dataclasses import replace
 
+    from kinfit.parallel import fit_models
+
+    options = options or FitOptions()
     specs = [spec] + [parse_candidate(c, study) for c in candidates]
-    others = [fit_model(s, study, replace(options or FitOptions(), profile=False,
-                                          bootstrap=0), argv=argv) for s in specs[1:]]
+    others = fit_models(specs[1:], study, replace(options, profile=False, bootstrap=0),
+                        executor=options.executor)
     rows = comparison_rows([result, *others], [s.label for s in specs],
                            [set(s.parameter_names) for s in specs])
     return replace(result, comparison=tuple(rows))

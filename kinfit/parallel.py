@@ -290,7 +290,7 @@ def add_parallel_arguments(parser: argparse.ArgumentParser) -> argparse.Argument
     )
     group.add_argument(
         "--scheduler", default=None, metavar="ADDRESS",
-        help="run them on a Dask cluster instead, e.g. tcp://10.0.0.5:8786 (needs the 'scale' "
+        help="run them on a Dask cluster instead, e.g. tcp://127.0.0.1:8786 (needs the 'scale' "
              "extra: pip install kinfit[scale])",
     )
     return parser

@@ -132,7 +132,7 @@ def batch_profiles(
     C = np.broadcast_to(C, r.shape)
     ceq = np.broadcast_to(ceq, (m, R))
     w = np.asarray(loading, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         g = (C - ceq[..., None]) / (w[None, :, None] * r)  # dt/d(-u), s
     if not np.all(np.isfinite(g) & (g > 0)):
         raise SolverError("the observed rate is zero, negative or not finite inside a batch "

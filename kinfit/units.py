@@ -22,7 +22,6 @@ __all__ = ["QUANTITY_KINDS", "SI_UNIT", "parse_quantity", "parse_header", "to_si
            "printable"]
 
 ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-ureg.define("rps = revolution / second")
 
 #: Kinds of quantity kinfit reads, with the SI unit it stores and the dimensionality pint checks.
 QUANTITY_KINDS: dict[str, tuple[str, str]] = {
@@ -54,7 +53,8 @@ _ALIASES = {"-": "", "1": "", "%": "percent", "um": "micrometer", "µm": "microm
             "μm": "micrometer", "M": "mol/L"}
 
 
-_ANGLES = {"revolution", "revolutions_per_minute", "rps", "turn", "radian", "degree"}
+_ANGLES = {"revolution", "revolutions_per_minute", "revolutions_per_second", "rps", "turn",
+           "radian", "degree"}
 
 
 @dataclass(frozen=True)
