@@ -42,6 +42,7 @@ once; :func:`grid_values` returns the values on the nodes of the three tables (s
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -66,7 +67,7 @@ __all__ = [
     "grid_values",
 ]
 
-Array = NDArray[np.float64]
+Array = NDArray[Any]          # float, index and mask arrays alike
 
 #: Shape index a of the pellet equation u'' + (a/xi) u' = phi^2 u^n for each geometry name.
 SHAPE_INDEX = {"slab": 0, "cylinder": 1, "sphere": 2}
@@ -299,7 +300,7 @@ def _dead_branch(a: int, n: Array, mu: list[Array]) -> list[Array]:
     def arrived(th, s):
         return np.max(s[k:] / s[:k] ** 2 / qc - 1.0) - 1e-12
 
-    arrived.terminal = True
+    arrived.terminal = True  # type: ignore[attr-defined]
     sol = _solve_ivp(rhs, (0.0, 1e5), np.concatenate([np.full(k, Z0), R0]), method="DOP853",
                     rtol=_RTOL, atol=1e-300, dense_output=True, events=[arrived])
     _check(sol, "dead-core branch")

@@ -25,6 +25,7 @@ from __future__ import annotations
 import functools
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -50,7 +51,7 @@ __all__ = [
     "log_eta",
 ]
 
-Array = NDArray[np.float64]
+Array = NDArray[Any]          # float, index and mask arrays alike
 
 #: Orders the table covers.
 ORDER_RANGE = (0.0, 3.0)
@@ -185,7 +186,7 @@ def save_power_law_tables(path: str | Path = TABLE_FILE) -> Path:
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    arrays: dict[str, Array] = {"key": _grid_key()}
+    arrays: dict[str, Any] = {"key": _grid_key()}
     for name, a in SHAPE_INDEX.items():
         for field, val in grid_values(a).items():
             arrays[f"{name}/{field}"] = val
@@ -221,6 +222,12 @@ class _Curves:
     for order k and ``kidx`` maps points to orders. ``pointwise``: every point has its own order
     and the 4 x 4 patch is contracted with the point's powers of u when a cell is asked for.
     """
+
+    patch: _Patch
+    tab: Any            # (K * n_cells, 4) or None
+    kidx: Any           # (N,) order index of each point, or None
+    j: Any              # (N,) order cell of each point (pointwise), or None
+    upow: Any           # (N, 4) powers of the local order coordinate (pointwise), or None
 
     def __init__(self, patch: _Patch, orders: Array, kidx: Array | None) -> None:
         self.patch = patch
@@ -335,6 +342,9 @@ def _blend_weight(n: Array) -> Array:
 
 class OrderSet:
     """The orders of a request: distinct values plus an index per point, or one per point."""
+
+    values: Any         # distinct orders, or None (one order per point)
+    kidx: Any           # index into ``values`` per point, or None
 
     def __init__(self, n_flat: Array, values: Array | None, kidx: Array | None) -> None:
         self.n = n_flat
