@@ -43,7 +43,7 @@ class BatchGrid:
         Interior points per panel (polynomial degree interior + 1).
     """
 
-    def __init__(self, *, n_panels: int = 12, depth: float = 1e-5, interior: int = 4) -> None:
+    def __init__(self, *, n_panels: int = 10, depth: float = 1e-5, interior: int = 4) -> None:
         self.n_panels, self.depth, self.interior = n_panels, depth, interior
         x, _ = np.polynomial.legendre.leggauss(interior)
         tau = np.concatenate([[0.0], 0.5 * (x + 1.0), [1.0]])  # local points in a panel
