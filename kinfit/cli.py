@@ -79,6 +79,11 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     result.save(out)
     print(result.report())
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
+    boot = result.extras.get("bootstrap") or {}
+    if boot.get("interrupted"):
+        print(f"kinfit: bootstrap interrupted after {boot['n_done']} of {boot['n']} replicates; "
+              "the results are saved with the intervals of the finished ones", file=sys.stderr)
+        return 130
     if not result.converged:
         print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
         return EXIT_FAILED

@@ -207,7 +207,11 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
         extras["profile_t_crit"] = float(prof.t_crit)
     if boot is not None:
         extras["bootstrap"] = {"kind": boot.kind, "n": int(boot.replicates.shape[0]),
-                               "n_failed": int(boot.n_failed)}
+                               "n_done": int(boot.n_done), "n_failed": int(boot.n_failed),
+                               "interrupted": bool(boot.interrupted),
+                               "notes": list(boot.intervals.notes)}
+        if boot.interrupted:
+            fit_block["message"] = f"{fit_block['message']}; {boot.intervals.notes[-1]}"
     extras["covariance"] = np.asarray(est.covariance).tolist()
     return FitResult(
         study=study.name, model=_describe(spec, study),

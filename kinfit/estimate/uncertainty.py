@@ -517,6 +517,11 @@ class BootstrapResult:
     seed : int or None
     n_failed : int
         Replicates that did not converge (left out of the intervals).
+    interrupted : bool
+        Ctrl-C stopped the bootstrap; the intervals use the replicates finished before it
+        (rows of the others hold NaN).
+    n_done : int
+        Replicates finished.
     """
 
     intervals: Intervals
@@ -525,6 +530,8 @@ class BootstrapResult:
     kind: str
     seed: int | None
     n_failed: int
+    interrupted: bool = False
+    n_done: int = 0
 
     def __post_init__(self) -> None:
         _readonly(self)
@@ -645,9 +652,26 @@ def bootstrap(
                 )
             )
     mapper = executor.map(_bootstrap_one, tasks) if executor else map(_bootstrap_one, tasks)
-    out = list(tqdm(mapper, total=n_boot, disable=not progress, desc=f"bootstrap ({kind})"))
-    reps = np.array([x for x, _ in out])
-    ok = np.array([c for _, c in out], dtype=bool)
+    out: list[tuple[NDArray[np.float64], bool]] = []
+    interrupted = False
+    bar = tqdm(total=n_boot, disable=not progress, desc=f"bootstrap ({kind})")
+    try:
+        for item in mapper:  # in task order, whatever the executor
+            out.append(item)
+            bar.update(1)
+    except KeyboardInterrupt:
+        # keep what was finished; closing the map cancels the replicates not yet started
+        interrupted = True
+        close = getattr(mapper, "close", None)
+        if close is not None:
+            close()
+    finally:
+        bar.close()
+    n_done = len(out)
+    reps = np.full((n_boot, estimate.n_params), np.nan)
+    ok = np.zeros(n_boot, dtype=bool)
+    for i, (x, c) in enumerate(out):
+        reps[i], ok[i] = x, c
     reps = np.where(ok[:, None], reps, np.nan)
     good = reps[ok]
     a = (1 - level) / 2
@@ -655,12 +679,15 @@ def bootstrap(
         lo, hi = np.quantile(good, [a, 1 - a], axis=0)
     else:
         lo = hi = np.full(estimate.n_params, np.nan)
-    n_failed = int(np.sum(~ok))
-    notes = (
-        (f"{n_failed} of {n_boot} replicates did not converge and are left out",)
+    n_failed = int(np.sum(~ok[:n_done]))
+    notes: tuple[str, ...] = (
+        (f"{n_failed} of {n_done} replicates did not converge and are left out",)
         if n_failed
         else ()
     )
+    if interrupted:
+        notes += (f"interrupted after {n_done} of {n_boot} replicates; the intervals use the "
+                  f"{int(ok.sum())} finished ones",)
     return BootstrapResult(
         intervals=Intervals(
             names=estimate.names,
@@ -678,6 +705,8 @@ def bootstrap(
         kind=kind,
         seed=seed,
         n_failed=n_failed,
+        interrupted=interrupted,
+        n_done=n_done,
     )
 
 
