@@ -21,7 +21,12 @@ from kinfit.estimate.problem import ErrorModel, Problem, Space
 from kinfit.parameters import ParameterTable
 from kinfit.reactors import BatchGrid, batch_profiles, differential_rates
 from kinfit.study import Study
-from kinfit.transport.surface import ObservedRate, PelletRate, observed_rate
+from kinfit.transport.surface import (
+    ObservedRate,
+    PelletRate,
+    observed_rate,
+    observed_rate_value,
+)
 
 __all__ = ["ModelSpec", "Model", "RunState", "ERROR_SCALE_NAMES"]
 
@@ -333,7 +338,7 @@ class Model:
         pr, conductance, _, _ = self._pieces(self.expand(theta))
 
         def rate(C: Array) -> Array:
-            return observed_rate(C, pr, conductance).rate
+            return observed_rate_value(C, pr, conductance)
 
         if self.spec.reactor == "batch":
             ceq = np.broadcast_to(pr.C_eq, (theta.shape[0], len(self.run_ids), 1))[..., 0]
@@ -346,7 +351,7 @@ class Model:
         """Batch concentrations at arbitrary times (for plots and predictions)."""
         pr, conductance, _, _ = self._pieces(self.expand(theta))
         ceq = np.broadcast_to(pr.C_eq, (np.atleast_2d(theta).shape[0], len(self.run_ids), 1))
-        conc, _ = batch_profiles(lambda C: observed_rate(C, pr, conductance).rate, self.C0,
+        conc, _ = batch_profiles(lambda C: observed_rate_value(C, pr, conductance), self.C0,
                                  ceq[..., 0], self.w, np.asarray(times, dtype=float),
                                  np.asarray(run_index), grid=self.grid)
         return conc
