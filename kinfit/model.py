@@ -335,7 +335,10 @@ class Model:
         (mol/(kg s)) for a rate campaign.
         """
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
-        pr, conductance, _, _ = self._pieces(self.expand(theta))
+        values = self.expand(theta)
+        if self._first_order(values):
+            return self._first_order_profiles(values, self.times, self.run_index)
+        pr, conductance, _, _ = self._pieces(values)
 
         def rate(C: Array) -> Array:
             return observed_rate_value(C, pr, conductance)
@@ -347,9 +350,54 @@ class Model:
             return conc
         return differential_rates(rate, self.C0, self.run_index)
 
+    def _first_order(self, values: Mapping[str, Array]) -> bool:
+        """Whether the closed form applies: an irreversible power law of order exactly 1 in a
+        batch reactor."""
+        return (self.spec.reactor == "batch" and self.spec.rate_law.name == "power"
+                and bool(np.all(values["order"] == 1.0)))
+
+    def _first_order_profiles(self, values: Mapping[str, Array], times: Array,
+                              run_index: NDArray[np.int_]) -> Array:
+        """First order in a batch slurry, closed form: with k1 = k(T)/C_ref, eta from the
+        first-order closed form at Phi = L sqrt(rho_p k1/De) and the resistances in series
+        1/k_obs = 1/(kc a_m) + 1/(eta k1), C = C0 exp(-w k_obs t) (Satterfield 1970)."""
+        from kinfit.transport.pellet import eta_first_order
+
+        spec, law = self.spec, self.spec.rate_law
+        law_p = {n: values[n] for n in law.parameter_names}
+        law.check(law_p)
+        film_p = {n: values[n] for n in spec.film.parameter_names}
+        spec.film.check(film_p)
+        T = self.T[None, :]
+        k1 = law.rate(law.reference_concentration, T, law_p) / law.reference_concentration
+        conductance = spec.film.kc(self.N[None, :], self.dp[None, :], T, film_p) * self.a_m
+        if spec.pellet == "none":
+            eta: Array | float = 1.0
+        else:
+            if spec.pellet == "direct":
+                De = values["effective_diffusivity"]
+            else:
+                Dm = (spec.molecular_diffusivity if spec.molecular_diffusivity
+                      else spec.fluid.diffusivity(T))
+                De = float(spec.porosity or 0.0) * Dm / values["tortuosity"]
+            if np.any(~(De > 0)):
+                raise ModelError("parameter 'effective_diffusivity' must be > 0, got "
+                                 f"{float(np.min(De)):g}")
+            eta = eta_first_order(self.L * np.sqrt(spec.particle_density * k1 / De),
+                                  spec.geometry)
+        with np.errstate(divide="ignore"):
+            k_obs = 1.0 / (1.0 / conductance + 1.0 / (eta * k1))
+        k_obs = np.broadcast_to(k_obs, k1.shape)
+        ri = np.asarray(run_index)
+        return self.C0[ri][None, :] * np.exp(-self.w[ri][None, :] * k_obs[:, ri] *
+                                             np.asarray(times, dtype=float)[None, :])
+
     def predict_profiles(self, theta: Array, times: Array, run_index: NDArray[np.int_]) -> Array:
         """Batch concentrations at arbitrary times (for plots and predictions)."""
-        pr, conductance, _, _ = self._pieces(self.expand(theta))
+        values = self.expand(np.atleast_2d(np.asarray(theta, dtype=float)))
+        if self._first_order(values):
+            return self._first_order_profiles(values, times, run_index)
+        pr, conductance, _, _ = self._pieces(values)
         ceq = np.broadcast_to(pr.C_eq, (np.atleast_2d(theta).shape[0], len(self.run_ids), 1))
         conc, _ = batch_profiles(lambda C: observed_rate_value(C, pr, conductance), self.C0,
                                  ceq[..., 0], self.w, np.asarray(times, dtype=float),

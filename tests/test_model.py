@@ -178,3 +178,16 @@ def test_missing_and_unknown_parameters(tmp_path):
                                                  '"3e-10 m^2/s"\n', ""))
     with pytest.raises(StudyError, match="unknown parameter 'colour'"):
         make_model(tmp_path, study=STUDY + "[parameters.colour]\nvalue = 1.0\n")
+
+
+def test_first_order_closed_form_matches_the_general_engine(tmp_path):
+    # at order 1 the model uses the closed form C = C0 exp(-w k_obs t) with series resistances
+    # (Satterfield 1970); the general engine (order 1 + 1e-12, integral in log C, tabulated
+    # eta) must agree with it
+    m = make_model(tmp_path, order=1.0)
+    t = np.linspace(0.0, 3000.0, m.n_obs)
+    closed = m.predict_profiles(m.x0[None, :], t, m.run_index)
+    near = m.x0.copy()
+    near[m.columns.index("order")] = 1.0 + 1e-12
+    general = m.predict_profiles(near[None, :], t, m.run_index)
+    np.testing.assert_allclose(general, closed, rtol=1e-7)
