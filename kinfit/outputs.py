@@ -4,20 +4,21 @@ reproducibility manifest shared by every command."""
 
 from __future__ import annotations
 
+import contextlib
 import json
 import math
 import os
 import platform
 import sys
 import tempfile
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from importlib import metadata
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-__all__ = ["write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
+__all__ = ["atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
            "manifest", "to_plain", "prepare_out_dir"]
 
 _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint", "arviz-base",
@@ -37,21 +38,49 @@ def prepare_out_dir(path: str | Path) -> Path:
     return out
 
 
+def _file_mode() -> int:
+    """The mode a new file gets under the process umask (mkstemp alone gives 0600)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | Path) -> Iterator[Path]:
+    """A temporary file beside ``path`` to write to; it replaces ``path`` (atomically, by
+    :func:`os.replace` in the same folder) when the block succeeds and is removed when it
+    fails or is interrupted, so ``path`` is never half-written.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> with atomic_path(d / "a.txt") as tmp:
+    ...     _ = tmp.write_text("done")
+    >>> (d / "a.txt").read_text()
+    'done'
+    """
+    dest = Path(path)
+    dest.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{dest.name}.", suffix=".tmp", dir=dest.parent)
+    os.close(fd)
+    os.chmod(tmp, _file_mode())
+    try:
+        yield Path(tmp)
+        os.replace(tmp, dest)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
 def write_bytes_atomic(path: str | Path, data: bytes) -> Path:
     """Write bytes to ``path`` through a temporary file and an atomic rename."""
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    with atomic_path(path) as tmp, open(tmp, "wb") as fh:
+        fh.write(data)
+        fh.flush()
+        os.fsync(fh.fileno())
     return path
 
 

@@ -236,9 +236,8 @@ def test_unserialisable_content_never_touches_the_file(tmp_path):
 def test_interrupted_bootstrap_keeps_earlier_results_and_exits_130(campaign, tmp_path,
                                                                   monkeypatch, capsys):
     """Ctrl-C after 4 of 20 bootstrap replicates of ``kinfit fit --bootstrap 20``: exit code
-    130 with the command line's message, the earlier results.json in --out untouched, no
-    temporary file left. (The 4 finished replicates are not kept: the estimation core's
-    bootstrap has no partial result yet; see the H8 report.)"""
+    130 with a message saying so, results.json replaced whole by the fit with the 4 finished
+    replicates recorded, no temporary file left."""
     import kinfit.estimate.uncertainty as unc
     from kinfit.cli import main
 
@@ -261,9 +260,11 @@ def test_interrupted_bootstrap_keeps_earlier_results_and_exits_130(campaign, tmp
         code = main(["fit", str(path), "--out", str(out), "--bootstrap", "20", "--quiet",
                      "--no-profile"])
     err = capsys.readouterr().err
-    assert code == 130 and "kinfit: interrupted" in err
+    assert code == 130 and "bootstrap interrupted after 4 of 20 replicates" in err
     assert len(done) == 4  # it really stopped in the middle of the bootstrap
-    assert json.loads((out / "results.json").read_text(encoding="utf-8")) == {"earlier": True}
+    saved = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    assert saved["extras"]["bootstrap"]["n_done"] == 4
+    assert saved["extras"]["bootstrap"]["interrupted"] is True
     assert _leftovers(out) == []
 
 

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -71,21 +70,14 @@ def atomic_write(
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{dest.name}.", suffix=".tmp")
-    try:
-        mode = "w" if text else "wb"
-        kwargs: dict[str, Any] = {"encoding": "utf-8", "newline": ""} if text else {}
-        with os.fdopen(fd, mode, **kwargs) as fh:
-            write(fh)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, dest)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+    from kinfit.outputs import atomic_path
+
+    mode = "w" if text else "wb"
+    kwargs: dict[str, Any] = {"encoding": "utf-8", "newline": ""} if text else {}
+    with atomic_path(dest) as tmp, open(tmp, mode, **kwargs) as fh:
+        write(fh)
+        fh.flush()
+        os.fsync(fh.fileno())
     return dest
 
 

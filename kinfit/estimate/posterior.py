@@ -11,7 +11,6 @@ import contextlib
 import json
 import math
 import os
-import tempfile
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -463,12 +462,7 @@ def _atomic_path(path: str | os.PathLike[str]) -> Iterator[str]:
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{dest.name}.", suffix=".tmp")
-    os.close(fd)
-    try:
-        yield tmp
-        os.replace(tmp, dest)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
+    from kinfit.outputs import atomic_path
+
+    with atomic_path(dest) as tmp:
+        yield str(tmp)
