@@ -16,7 +16,6 @@ import inspect
 import math
 from abc import ABC, abstractmethod
 from collections.abc import Collection, Mapping
-from dataclasses import dataclass
 from typing import Any, ClassVar
 
 import numpy as np
@@ -25,6 +24,7 @@ from scipy.constants import R as GAS_CONSTANT
 
 from kinfit.errors import ModelError, StudyError
 from kinfit.expressions import CompiledExpression, compile_expression
+from kinfit.families import DeclaredParameters, Interval, check_limits
 
 __all__ = [
     "GAS_CONSTANT",
@@ -48,93 +48,6 @@ Params = Mapping[str, ArrayLike]
 
 #: Default reference concentration of the power law: 1 mol/L.
 DEFAULT_REFERENCE_CONCENTRATION = 1000.0
-
-
-@dataclass(frozen=True)
-class Interval:
-    """Accepted range of a physical parameter (a declarative constraint, one per parameter).
-
-    Parameters
-    ----------
-    lower, upper : float
-        Bounds; ``-inf``/``inf`` for none.
-    lower_closed, upper_closed : bool
-        Whether the bound itself is accepted.
-    unit : str
-        SI unit, for messages.
-
-    Examples
-    --------
-    >>> str(Interval(0.0, 3.0))
-    '[0, 3]'
-    >>> bool(Interval(0.0, lower_closed=False).contains(0.0))
-    False
-    """
-
-    lower: float = -math.inf
-    upper: float = math.inf
-    lower_closed: bool = True
-    upper_closed: bool = True
-    unit: str = ""
-
-    def contains(self, values: ArrayLike) -> NDArray[np.bool_]:
-        """Element-wise membership (False for nan)."""
-        v = np.asarray(values, dtype=float)
-        lo = v >= self.lower if self.lower_closed else v > self.lower
-        hi = v <= self.upper if self.upper_closed else v < self.upper
-        return lo & hi
-
-    def __str__(self) -> str:
-        if math.isinf(self.upper) and not math.isinf(self.lower):
-            return f"{'>=' if self.lower_closed else '>'} {self.lower:g}"
-        if math.isinf(self.lower) and not math.isinf(self.upper):
-            return f"{'<=' if self.upper_closed else '<'} {self.upper:g}"
-        left = "[" if self.lower_closed and not math.isinf(self.lower) else "("
-        right = "]" if self.upper_closed and not math.isinf(self.upper) else ")"
-        return f"{left}{self.lower:g}, {self.upper:g}{right}"
-
-    def outside_example(self) -> float | None:
-        """A finite value outside the interval (None if every finite value is inside)."""
-        if not math.isinf(self.lower):
-            return self.lower - (1.0 + abs(self.lower)) if self.lower_closed else self.lower
-        if not math.isinf(self.upper):
-            return self.upper + (1.0 + abs(self.upper)) if self.upper_closed else self.upper
-        return None
-
-
-def check_limits(
-    owner: str, values: Mapping[str, FloatArray], limits: Mapping[str, Interval]
-) -> None:
-    """Raise ModelError for the first non-finite value or value outside its interval.
-
-    Parameters
-    ----------
-    owner : str
-        What the parameters belong to, for the message (e.g. "rate law 'power'").
-    values : mapping of str to ndarray
-        Parameter values (any shapes).
-    limits : mapping of str to Interval
-        Accepted range per parameter; parameters without an entry need only be finite.
-    """
-    for name, v in values.items():
-        v = np.asarray(v, dtype=float)
-        finite = np.isfinite(v)
-        if not np.all(finite):
-            raise ModelError(
-                f"{owner}: parameter '{name}' must be finite, got {v[~finite].flat[0]}"
-            )
-        interval = limits.get(name)
-        if interval is None:
-            continue
-        ok = interval.contains(v)
-        if not np.all(ok):
-            unit = f" {interval.unit}" if interval.unit not in ("", "-") else ""
-            bounded = not (math.isinf(interval.lower) or math.isinf(interval.upper))
-            phrase = f"in {interval}" if bounded else str(interval)
-            raise ModelError(
-                f"{owner}: parameter '{name}' must be {phrase}{unit}, got {v[~ok].flat[0]:g}; "
-                "adjust its value or bounds in [parameters." + name + "]"
-            )
 
 
 # ----------------------------------------------------------------------------------------------
@@ -311,7 +224,7 @@ def _option_positive(law: str, option: str, value: Any, unit: str) -> float:
     return v
 
 
-class RateLaw(ABC):
+class RateLaw(DeclaredParameters, ABC):
     """Intrinsic rate of A -> products per kg of catalyst as a function of C and T.
 
     A family declares its parameters once, in the class tables ``_units`` (name -> SI unit, in
@@ -326,24 +239,7 @@ class RateLaw(ABC):
     name: ClassVar[str]
     #: Whether the law has a non-zero equilibrium concentration (needs ``C0``).
     reversible: ClassVar[bool] = False
-    _units: ClassVar[dict[str, str]] = {}
-    _limits: ClassVar[dict[str, Interval]] = {}
     _option_names: ClassVar[tuple[str, ...]] = ()
-
-    @property
-    def parameter_names(self) -> tuple[str, ...]:
-        """Names of the parameters, as the study's ``[parameters.*]`` tables use them."""
-        return tuple(self._units)
-
-    @property
-    def parameter_units(self) -> dict[str, str]:
-        """SI unit of each parameter (``"-"`` dimensionless, ``""`` unknown)."""
-        return dict(self._units)
-
-    @property
-    def parameter_limits(self) -> dict[str, Interval]:
-        """Accepted range of each parameter (parameters not listed need only be finite)."""
-        return dict(self._limits)
 
     @property
     def options(self) -> dict[str, Any]:

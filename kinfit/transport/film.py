@@ -29,7 +29,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from kinfit.errors import StudyError
-from kinfit.kinetics import Interval, check_limits
+from kinfit.families import DeclaredParameters, Interval, check_limits
 from kinfit.transport.properties import Fluid
 
 __all__ = [
@@ -271,7 +271,7 @@ def _broadcast(value: ArrayLike, *arrays: ArrayLike) -> FloatArray:
     return np.broadcast_to(np.asarray(value, dtype=float), shape).copy()
 
 
-class FilmModel(ABC):
+class FilmModel(DeclaredParameters, ABC):
     """Liquid-solid mass-transfer coefficient k_c(N, dp, T; p) [m/s].
 
     Subclasses set :attr:`name` and implement :meth:`kc`; those with fitted parameters declare
@@ -281,23 +281,6 @@ class FilmModel(ABC):
 
     #: Registry name used by the study file's ``[film] model``.
     name: ClassVar[str]
-    _units: ClassVar[dict[str, str]] = {}
-    _limits: ClassVar[dict[str, Interval]] = {}
-
-    @property
-    def parameter_names(self) -> tuple[str, ...]:
-        """Names of fitted parameters (empty for published correlations)."""
-        return tuple(self._units)
-
-    @property
-    def parameter_units(self) -> dict[str, str]:
-        """SI unit of each parameter."""
-        return dict(self._units)
-
-    @property
-    def parameter_limits(self) -> dict[str, Interval]:
-        """Accepted range of each parameter (parameters not listed need only be finite)."""
-        return dict(self._limits)
 
     @abstractmethod
     def kc(self, N: ArrayLike, dp: ArrayLike, T: ArrayLike, p: Params) -> FloatArray:
