@@ -29,9 +29,13 @@ def _cmd_check(args: argparse.Namespace) -> int:
     from kinfit.campaign import campaign_summary
     from kinfit.study import load_study
 
+    from kinfit.fitting import main_spec
+
     study = load_study(args.study)
+    spec = main_spec(study)  # the model choices and the parameter table must fit together
     print(campaign_summary(study))
-    print("\nstudy is valid")
+    print(f"\nmodel: {spec.label}; parameters {', '.join(spec.parameter_names)}")
+    print("study is valid")
     return EXIT_OK
 
 

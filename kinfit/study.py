@@ -563,12 +563,33 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
     return kind, out
 
 
+#: keys each closed section accepts; a misspelt key is an error, not silently ignored
+#: ([kinetics] and [film] take their rate law's and film model's options, checked there)
+SECTION_KEYS: dict[str, frozenset[str]] = {
+    "study": frozenset({"name", "description", "author", "date", "notes"}),
+    "data": frozenset({"runs", "observations", "tolerance"}),
+    "catalyst": frozenset({"geometry", "particle_density", "porosity", "name", "notes"}),
+    "pellet": frozenset({"diffusivity", "molecular_diffusivity"}),
+    "error": frozenset({"model"}),
+    "fit": frozenset({"compare"}),
+    "fluid": frozenset({"solvent", "viscosity", "density", "molar_mass", "association_factor",
+                        "solute_molar_volume", "diffusivity", "diffusivity_temperature"}),
+}
+SECTIONS = frozenset({*SECTION_KEYS, "kinetics", "film", "parameters"})
+
+
 def _section(doc: Mapping[str, Any], name: str, path: Path, required: bool) -> dict[str, Any]:
     sec = doc.get(name, {})
     if not isinstance(sec, Mapping):
         raise StudyError(f"{path}: '{name}' must be a [section], got {type(sec).__name__}")
     if required and not sec:
         raise StudyError(f"{path}: the study file needs a [{name}] section")
+    allowed = SECTION_KEYS.get(name)
+    if allowed is not None:
+        unknown = sorted(set(sec) - allowed)
+        if unknown:
+            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'; "
+                             f"allowed keys are {sorted(allowed)}")
     return dict(sec)
 
 
@@ -638,6 +659,10 @@ def load_study(path: str | Path) -> Study:
     """
     path = Path(path)
     doc = _read_toml(path)
+    stray = sorted(set(doc) - SECTIONS)
+    if stray:
+        raise StudyError(f"{path}: unknown section or key '{printable(stray[0])}' at the top "
+                         f"level; the study file's sections are {sorted(SECTIONS)}")
     base = path.resolve().parent
     files = {str(path): _sha256(path)}
     data = _section(doc, "data", path, True)

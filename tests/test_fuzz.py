@@ -33,6 +33,7 @@ from hypothesis import strategies as st
 
 from kinfit.cli import main
 from kinfit.errors import KinfitError, StudyError
+from kinfit.fitting import main_spec
 from kinfit.study import load_study
 
 #: wall-clock limit of one case, seconds (a loaded CI machine stays far below it)
@@ -424,6 +425,7 @@ def run_case(case: Case, *, limit: float = CASE_LIMIT) -> Outcome:
             with alarm_guard(limit):
                 try:
                     study = load_study(path)
+                    main_spec(study)  # kinfit check also builds the model choices
                     loaded = True
                 except StudyError:
                     loaded = False

@@ -256,6 +256,15 @@ BAD_CASES = {
         dict(study=_edit(STUDY, '"sphere"', '"cube"')),
         r"\[catalyst\]: geometry = 'cube' is not recognised; use one of \['sphere'",
     ),
+    "unknown key in a section": (
+        dict(study=_edit(STUDY, 'particle_density = "1500 kg/m^3"',
+                         'particle_density = "1500 kg/m^3"\nporosty = 0.5')),
+        r"\[catalyst\] has unknown key 'porosty'; allowed keys are",
+    ),
+    "unknown section": (
+        dict(study=STUDY + "\n[pelet]\ndiffusivity = \"direct\"\n"),
+        r"unknown section or key 'pelet' at the top level",
+    ),
     "quantity without unit": (
         dict(study=_edit(STUDY, 'particle_density = "1500 kg/m^3"', "particle_density = 1500")),
         r"\[catalyst\]\.particle_density: the number 1500 has no unit",
