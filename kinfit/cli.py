@@ -27,9 +27,8 @@ class _Parser(argparse.ArgumentParser):
 
 def _cmd_check(args: argparse.Namespace) -> int:
     from kinfit.campaign import campaign_summary
-    from kinfit.study import load_study
-
     from kinfit.fitting import main_spec
+    from kinfit.study import load_study
 
     study = load_study(args.study)
     spec = main_spec(study)  # the model choices and the parameter table must fit together

@@ -20,8 +20,8 @@ larger than :data:`MAX_EXPONENT` in magnitude.
 from __future__ import annotations
 
 import ast
-import warnings
 import math
+import warnings
 from collections.abc import Callable, Collection, Mapping
 from dataclasses import dataclass
 from typing import Any
