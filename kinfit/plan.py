@@ -336,7 +336,7 @@ def information(fitted: FittedModel, conditions: Sequence[Condition] | None = No
     call of p + 1 rows) at the fitted values; the columns are the fit's, whatever columns the
     runs' own model has (by name). Without ``conditions`` the campaign's runs.
     """
-    from kinfit.estimate.least_squares import Evaluator, jacobian_internal
+    from kinfit.estimate.evaluation import Evaluator, jacobian_internal
 
     if conditions is None:
         model = fitted.model

@@ -596,7 +596,7 @@ def film_information(fitted: FittedModel) -> dict[str, Any]:
         ``film_share`` (share of the kc_ref information from film-regime runs, or None),
         ``film_only`` (all_film or film_share >= :data:`FILM_INFORMATION_SHARE`), ``regimes``.
     """
-    from kinfit.estimate.least_squares import Evaluator, jacobian_internal
+    from kinfit.estimate.evaluation import Evaluator, jacobian_internal
 
     model = fitted.model
     regimes = {rid: str(fitted.fit.runs.get(rid, {}).get("regime", "")) for rid in model.run_ids}

@@ -22,7 +22,7 @@ from scipy.stats import chi2
 from scipy.stats import f as fisher_f
 
 from kinfit.errors import StudyError
-from kinfit.estimate.least_squares import Estimate
+from kinfit.estimate.result import Estimate
 
 __all__ = ["CRITERIA", "Comparison", "NestedTest", "compare_fits"]
 
