@@ -7,14 +7,14 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from kinfit.errors import ModelError
+from kinfit.errors import ModelError, StudyError
 
-__all__ = ["Interval", "check_limits", "DeclaredParameters"]
+__all__ = ["Interval", "check_limits", "positive_option", "DeclaredParameters"]
 
 FloatArray = NDArray[np.float64]
 
@@ -103,6 +103,32 @@ def check_limits(
                 f"{owner}: parameter '{name}' must be {phrase}{unit}, got {v[~ok].flat[0]:g}; "
                 "adjust its value or bounds in [parameters." + name + "]"
             )
+
+
+def positive_option(owner: str, option: str, value: Any, unit: str) -> float:
+    """A model option that must be a finite number > 0 (e.g. a reference temperature).
+
+    Raises
+    ------
+    StudyError
+        Naming the owner (``"rate law 'power'"``, ``"[film] model 'agitation'"``), the option,
+        the unit and the value received.
+
+    Examples
+    --------
+    >>> positive_option("rate law 'power'", "reference_temperature", 300, "K")
+    300.0
+    """
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise StudyError(
+            f"{owner}: option '{option}' must be a number in {unit}, got {value!r}"
+        ) from None
+    if not (math.isfinite(v) and v > 0):
+        raise StudyError(f"{owner}: option '{option}' must be finite and > 0 {unit}, "
+                         f"got {value!r}")
+    return v
 
 
 class DeclaredParameters:

@@ -13,7 +13,6 @@ Pinto 2007, Chem. Eng. Sci. 62, 2750-2764).
 from __future__ import annotations
 
 import inspect
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Collection, Mapping
 from typing import Any, ClassVar
@@ -24,7 +23,7 @@ from scipy.constants import R as GAS_CONSTANT
 
 from kinfit.errors import ModelError, StudyError
 from kinfit.expressions import CompiledExpression, compile_expression
-from kinfit.families import DeclaredParameters, Interval, check_limits
+from kinfit.families import DeclaredParameters, Interval, check_limits, positive_option
 
 __all__ = [
     "GAS_CONSTANT",
@@ -211,17 +210,7 @@ def _take(law: RateLaw, p: Params, names: Collection[str]) -> list[FloatArray]:
 
 
 def _option_positive(law: str, option: str, value: Any, unit: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise StudyError(
-            f"rate law '{law}': option '{option}' must be a number in {unit}, got {value!r}"
-        ) from None
-    if not (math.isfinite(v) and v > 0):
-        raise StudyError(
-            f"rate law '{law}': option '{option}' must be finite and > 0 {unit}, got {value!r}"
-        )
-    return v
+    return positive_option(f"rate law '{law}'", option, value, unit)
 
 
 class RateLaw(DeclaredParameters, ABC):

@@ -20,7 +20,6 @@ Shapes broadcast like the rate laws: N, dp, T of shape (n,), parameters of shape
 from __future__ import annotations
 
 import inspect
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping
 from typing import Any, ClassVar
@@ -29,7 +28,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from kinfit.errors import StudyError
-from kinfit.families import DeclaredParameters, Interval, check_limits
+from kinfit.families import DeclaredParameters, Interval, check_limits, positive_option
 from kinfit.transport.properties import Fluid
 
 __all__ = [
@@ -238,18 +237,7 @@ def sherwood_wakao_funazkri(Re: ArrayLike, Sc: ArrayLike) -> FloatArray:
 
 
 def _positive_option(model: str, option: str, value: Any, unit: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise StudyError(
-            f"[film] model '{model}': option '{option}' must be a number in {unit}, got {value!r}"
-        ) from None
-    if not (math.isfinite(v) and v > 0):
-        raise StudyError(
-            f"[film] model '{model}': option '{option}' must be finite and > 0 {unit}, "
-            f"got {value!r}"
-        )
-    return v
+    return positive_option(f"[film] model '{model}'", option, value, unit)
 
 
 def _fluid_option(model: str, fluid: Any) -> Fluid:
