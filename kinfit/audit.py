@@ -545,7 +545,7 @@ def _interval(entry: Mapping[str, Any], scale: float = 1.0) -> str:
 
 
 def _markdown(result: AuditResult) -> str:
-    from kinfit.predict import display
+    from kinfit.conditions import display
 
     lines = [f"# Audit of claimed kinetics: {result.title}", "",
              f"Claim file: `{result.path.name}`. Criteria and thresholds as in kinfit's "

@@ -40,10 +40,10 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy import stats
 
+from kinfit.conditions import PAD_RUN, Condition, FittedModel, display, load_fitted
 from kinfit.criteria import Thresholds
 from kinfit.errors import StudyError
 from kinfit.model import Model
-from kinfit.predict import PAD_RUN, Condition, FittedModel, display, load_fitted
 from kinfit.results import FitResult
 from kinfit.study import FACTORS, Study
 
