@@ -55,6 +55,8 @@ class SampleOptions:
         Draws used for predictive bands and derived quantities.
     stop_rule : str
         The sampler's stopping rule (see :func:`kinfit.estimate.sampling.sample_problem`).
+    moves : str
+        The sampler's proposal moves (same reference).
     """
 
     walkers: int | None = None
@@ -66,6 +68,7 @@ class SampleOptions:
     progress: bool = True
     n_predictive: int = 200
     stop_rule: str = "converged"
+    moves: str = "de"
 
 
 def _fitted_theta(model: Model, fit: FitResult) -> np.ndarray:
@@ -122,7 +125,7 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         n_walkers=options.walkers, max_steps=options.max_steps, chunk=options.chunk,
         tau_multiple=options.tau_multiple, seed=options.seed,
         checkpoint=out / "posterior_checkpoint.npz", resume=options.resume,
-        progress=options.progress, stop_rule=options.stop_rule,
+        progress=options.progress, stop_rule=options.stop_rule, moves=options.moves,
     )
     rng = np.random.default_rng(options.seed)
     # predictive band of the mean response at the observation times, and on a fine grid

@@ -128,7 +128,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     out = prepare_out_dir(args.out or fit_dir)
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
-                            progress=not args.quiet)
+                            progress=not args.quiet, moves=args.moves)
     post, content = sample_study(study, fit, out, options, argv=sys.argv)
     print(post.report())
     print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
@@ -155,13 +155,15 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
                    help="stop when the chain exceeds this many autocorrelation times")
     p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
+    p.add_argument("--moves", choices=("de", "stretch"), default="de",
+                   help="proposal: differential-evolution move (default) or stretch move")
     p.add_argument("--require-converged", action="store_true",
                    help="exit 1 when the chain has not converged")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    """The whole job: check, fit, sample (short chain), diagnose, report."""
+    """The whole job: check, fit, sample (until converged or the step cap), diagnose, report."""
     import time
 
     from kinfit.bayes import SampleOptions, sample_study
@@ -208,8 +210,9 @@ def _run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
     p.add_argument("--multistart", type=int, default=0, metavar="N",
                    help="extra least-squares starts")
-    p.add_argument("--steps", type=int, default=2000,
-                   help="posterior step cap (0: no sampling; default 2000, a short chain)")
+    p.add_argument("--steps", type=int, default=10000,
+                   help="posterior step cap; sampling stops earlier once converged (0: no "
+                        "sampling; default 10000)")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 

@@ -38,6 +38,7 @@ IDENTITY_KEYS = (
     "fixed_scales",
     "priors",
     "problem",
+    "moves",
 )
 
 

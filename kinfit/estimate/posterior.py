@@ -65,6 +65,8 @@ class SamplerSettings:
         Steps taken from a checkpoint (0 for a fresh run).
     stopped_by : {"converged", "autocorrelation", "max_steps", "interrupted"}
         Why sampling stopped.
+    moves : {"de", "stretch"}
+        Proposal moves of the ensemble sampler.
     """
 
     n_walkers: int
@@ -81,6 +83,7 @@ class SamplerSettings:
     checkpoint: str | None
     resumed_from: int
     stopped_by: str
+    moves: str = "stretch"
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-type form; ``walkers``, ``steps``, ``burn_in``, ``seed`` are contract names."""
@@ -99,6 +102,7 @@ class SamplerSettings:
             "checkpoint": self.checkpoint,
             "resumed_from": self.resumed_from,
             "stopped_by": self.stopped_by,
+            "moves": self.moves,
         }
 
 
