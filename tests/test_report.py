@@ -475,6 +475,28 @@ def test_every_axis_has_a_unit(fitted, full_report):
                     assert unit.search(label), (fig.axes.index(ax), label, type(fig))
 
 
+def test_regime_map_labels_coincident_runs_once_and_do_not_overlap():
+    """Runs that sit on the same spot share one label; no two labels overprint (checked on
+    the drawn text boxes)."""
+    from kinfit.report import figures as fg
+
+    runs = [("R01", 0.02, 0.03, "kinetic"), ("R02", 0.02, 0.03, "kinetic"),
+            ("R11", 4.6, 0.57, "film"), ("R12", 4.6, 0.57, "film"), ("R19", 7.0, 0.68, "film"),
+            ("R20", 7.0, 0.68, "film"), ("R23", 8.0, 0.50, "film"), ("R03", 2.7, 0.44, "mixed"),
+            ("R15", 5.0, 0.39, "pore"), ("R07", 2.9, 0.27, "pore")]
+    fig = fg.regime_map_figure(runs, carberry_limit=0.033, weisz_prater_limit=0.033)
+    fig.canvas.draw()
+    ax = fig.axes[0]
+    labels = [t for t in ax.texts if t.get_text().startswith("R")]
+    assert sorted(t.get_text() for t in labels) == sorted(
+        ["R01, R02", "R11, R12", "R19, R20", "R23", "R03", "R15", "R07"])
+    renderer = fig.canvas.get_renderer()
+    boxes = [t.get_window_extent(renderer) for t in labels]
+    for i, a in enumerate(boxes):
+        for b in boxes[i + 1:]:
+            assert not a.overlaps(b), (a, b)
+
+
 def test_same_results_give_the_same_report(fitted, plain_report):
     from kinfit.report import build_report
 

@@ -542,6 +542,7 @@ def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry
             color=REGIME_COLOURS["kinetic"])
     present = []
     zero_note = []
+    points: list[tuple[str, float, float]] = []
     for rid, w, c, reg in runs:
         reg = reg if reg in REGIME_COLOURS else "mixed"
         marker = _REGIME_MARKERS[reg]
@@ -554,14 +555,14 @@ def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry
             zero_note.append("Ca")
         ax.plot([xw], [yc], ls="none", marker=marker, color=REGIME_COLOURS[reg], ms=5,
                 mec="white", mew=0.4, clip_on=False)
-        ax.annotate(rid, (xw, yc), xytext=(3, 3), textcoords="offset points", fontsize=6.2,
-                    color=INK)
+        points.append((rid, xw, yc))
         if reg not in present:
             present.append(reg)
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlim(x_lo, x_hi)
     ax.set_ylim(y_lo, y_hi)
+    _label_points(ax, points, fontsize=6.2)
     ax.set_xlabel(axis_label("Weisz–Prater number Ψ_L", "-"))
     ax.set_ylabel(axis_label("Carberry number Ca", "-"))
     if zero_note:
@@ -570,6 +571,32 @@ def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry
                      fontsize=7, fontweight="normal", color=MUTED)
     _regime_legend(ax, present, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     return fig
+
+
+def _label_points(ax: Any, points: Sequence[tuple[str, float, float]], *,
+                  fontsize: float) -> None:
+    """Label points without overprinting: points that coincide on the plot (within 1.5 % of
+    the axes) share one label ("R01, R02"); adjustText then moves labels off each other and
+    off the markers, with a thin leader line where a label had to move away."""
+    from adjustText import adjust_text
+
+    to_px = ax.transData.transform
+    span = np.abs(np.diff(ax.transAxes.transform([[0.0, 0.0], [1.0, 1.0]]), axis=0))[0]
+    groups: list[tuple[list[str], NDArray[np.float64], float, float]] = []
+    for rid, x, y in points:
+        px = to_px((x, y))
+        for names, centre, _, _ in groups:
+            if np.all(np.abs(px - centre) < 0.015 * span):
+                names.append(rid)
+                break
+        else:
+            groups.append(([rid], px, x, y))
+    texts = [ax.text(x, y, ", ".join(names), fontsize=fontsize, color=INK, ha="left",
+                     va="bottom") for names, _, x, y in groups]
+    if len(texts) > 1:
+        adjust_text(texts, x=[p[1] for p in points], y=[p[2] for p in points], ax=ax,
+                    arrowprops={"arrowstyle": "-", "color": MUTED, "lw": 0.4},
+                    ensure_inside_axes=True)
 
 
 # ---------------------------------------------------------------------------------- statistics
