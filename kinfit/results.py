@@ -8,6 +8,7 @@ other tools work from saved results.
 
 from __future__ import annotations
 
+import hashlib
 import json
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -104,14 +105,22 @@ class FitResult:
         return pd.DataFrame(rows)
 
     def save(self, folder: str | Path) -> Path:
-        """Write results.json (and predictions.csv when present) atomically into ``folder``."""
+        """Write predictions.csv (when present), then results.json, each atomically.
+
+        results.json records the SHA-256 of the predictions.csv written with it
+        (``manifest.outputs``), so that :meth:`load` can tell a matching pair from a
+        predictions file left by another run or by an interruption between the two writes.
+        """
         from kinfit.outputs import write_frame_atomic, write_json_atomic
 
         folder = Path(folder)
-        path = write_json_atomic(folder / "results.json", self.to_dict())
+        outputs: dict[str, Any] = {}
         if self.predictions is not None:
-            write_frame_atomic(folder / "predictions.csv", self.predictions)
-        return path
+            pred = write_frame_atomic(folder / PREDICTIONS_FILE, self.predictions)
+            outputs[PREDICTIONS_FILE] = {"sha256": hashlib.sha256(pred.read_bytes()).hexdigest()}
+        content = self.to_dict()
+        content["manifest"] = {**dict(content.get("manifest") or {}), "outputs": outputs}
+        return write_json_atomic(folder / "results.json", content)
 
     @classmethod
     def load(cls, folder: str | Path) -> FitResult:
@@ -128,8 +137,7 @@ class FitResult:
         for key in ("parameters", "runs", "fit"):
             if key not in data:
                 raise StudyError(f"{path}: not a kinfit results file (no '{key}')")
-        pred_path = path.parent / "predictions.csv"
-        pred = pd.read_csv(pred_path) if pred_path.is_file() else None
+        pred = _matching_predictions(path, data.get("manifest") or {})
         return cls(
             study=data.get("study", ""), model=data.get("model", {}),
             parameters=data["parameters"], runs=data["runs"], fit=data["fit"],
@@ -204,3 +212,30 @@ class FitResult:
                 lines.append(f"  {row['model']:<36}{row['sse']:>12.5g}{row['aicc']:>12.5g}"
                              f"{row['bic']:>12.5g}{row['akaike_weight']:>9.3f}")
         return "\n".join(lines)
+
+
+#: The per-observation table saved beside results.json.
+PREDICTIONS_FILE = "predictions.csv"
+
+
+def _matching_predictions(path: Path, manifest: Mapping[str, Any]) -> pd.DataFrame | None:
+    """predictions.csv beside ``path`` when it belongs to that results.json, else None.
+
+    Results written before the pairing was recorded (no ``manifest.outputs``) take the file
+    as it is. A file whose hash differs from the recorded one raises :class:`StudyError`.
+    """
+    pred_path = path.parent / PREDICTIONS_FILE
+    outputs = manifest.get("outputs")
+    if outputs is None:
+        return pd.read_csv(pred_path) if pred_path.is_file() else None
+    entry = outputs.get(PREDICTIONS_FILE) if isinstance(outputs, Mapping) else None
+    if entry is None or not pred_path.is_file():
+        return None
+    digest = hashlib.sha256(pred_path.read_bytes()).hexdigest()
+    if digest != entry.get("sha256"):
+        raise StudyError(
+            f"{pred_path} does not belong to {path.name} beside it (its SHA-256 differs from "
+            "the one recorded there): it was written by another run, or a run was interrupted "
+            "between the two files; rerun 'kinfit fit' into this folder"
+        )
+    return pd.read_csv(pred_path)

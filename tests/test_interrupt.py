@@ -40,3 +40,45 @@ def test_interrupted_bootstrap_keeps_finished_replicates():
     assert np.all(np.isfinite(result.replicates[: result.n_done - 1]))
     assert np.all(np.isnan(result.replicates[result.n_done:]))
     assert any("interrupted after" in note for note in result.intervals.notes)
+
+
+def _result(values):
+    import pandas as pd
+
+    from kinfit.results import FitResult
+
+    return FitResult(study="s", model={}, parameters={}, runs={}, correlation={},
+                     fit={"converged": True, "n_obs": 2, "n_params": 1, "sse": 0.0,
+                          "aic": 0.0, "bic": 0.0, "message": ""},
+                     predictions=pd.DataFrame({"run": ["A", "A"], "fitted": values}))
+
+
+def test_results_and_predictions_are_read_only_as_a_pair(tmp_path):
+    # results.json records the hash of the predictions.csv written with it; a predictions
+    # file from another run (or left by an interruption between the two writes) is refused
+    import json
+
+    import pytest
+
+    from kinfit.errors import StudyError
+    from kinfit.results import FitResult
+
+    _result([1.0, 2.0]).save(tmp_path)
+    back = FitResult.load(tmp_path)
+    assert list(back.predictions["fitted"]) == [1.0, 2.0]
+    saved = json.loads((tmp_path / "results.json").read_text())
+    assert set(saved["manifest"]["outputs"]) == {"predictions.csv"}
+    # a second run that stopped after writing predictions.csv but before results.json
+    from kinfit.outputs import write_frame_atomic
+
+    write_frame_atomic(tmp_path / "predictions.csv", _result([3.0, 4.0]).predictions)
+    with pytest.raises(StudyError, match="does not belong to results.json"):
+        FitResult.load(tmp_path)
+    # a result without predictions ignores a stale file; old results (no record) read it as is
+    import dataclasses
+
+    dataclasses.replace(_result([0.0, 0.0]), predictions=None).save(tmp_path)
+    assert FitResult.load(tmp_path).predictions is None
+    del saved["manifest"]["outputs"]
+    (tmp_path / "results.json").write_text(json.dumps(saved))
+    assert list(FitResult.load(tmp_path).predictions["fitted"]) == [3.0, 4.0]
