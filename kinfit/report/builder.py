@@ -236,21 +236,29 @@ class ReportBuilder:
         if fixed:
             blocks.append(Text("Held constant: " + ", ".join(fixed) + "."))
         blocks.append(Heading("Transport tests the campaign supports"))
-        tests = []
+        rows, meanings = [], []
         for factor, meaning in TEST_MEANING.items():
+            label = FACTOR_LABEL[factor][0]
             sets = comparison_sets(study, factor)
             if not sets:
-                tests.append(f"{FACTOR_LABEL[factor][0]}: none possible (no runs that differ "
-                             f"only in it); such runs would test {meaning}")
+                meanings.append(f"{label}: none possible (no runs that differ only in it); such "
+                                f"runs would test {meaning}")
                 continue
-            for s in sets:
-                vals = " vs ".join(factor_text(factor, v) for v in s.values)
-                tests.append(f"{FACTOR_LABEL[factor][0]}: {vals}, runs {', '.join(s.runs)}: "
-                             f"tests {meaning}")
+            meanings.append(f"{label} ({len(sets)} set{'s' if len(sets) != 1 else ''}): tests "
+                            f"{meaning}")
+            rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
+                      ", ".join(factor_text(f, x) for f, x in s.fixed.items() if f in varied),
+                      ", ".join(s.runs)) for s in sets]
         if "temperature" not in varied:
-            tests.append("temperature: one level only, so the activation energy is not "
-                         "identified")
-        blocks.append(Items(tuple(tests)))
+            meanings.append("temperature: one level only, so the activation energy is not "
+                            "identified")
+        blocks.append(Items(tuple(meanings)))
+        if rows:
+            blocks.append(self.table(
+                "Sets of runs that differ in one factor only (the other factors equal within "
+                "1 %): the classic transport tests; their statistical outcome is in the "
+                "transport diagnosis.", ("factor varied", "levels", "others held at", "runs"),
+                rows))
         return Section("campaign", "Campaign", tuple(blocks))
 
     def _parameters(self) -> Section:
