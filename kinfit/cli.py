@@ -10,6 +10,7 @@ import sys
 import warnings
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import Any
 
 from kinfit.errors import KinfitError, StudyError
 
@@ -298,6 +299,12 @@ _ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
 }
 
 
+def _show_warning(message: Warning | str, category: type[Warning], filename: str, lineno: int,
+                  file: Any = None, line: str | None = None) -> None:
+    """Warnings on the command line as one plain line, without source file and code line."""
+    print(f"kinfit: warning: {message}", file=sys.stderr if file is None else file)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``kinfit`` console script; returns the exit code."""
     try:
@@ -308,6 +315,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             return EXIT_BAD_INPUT
         with warnings.catch_warnings():
             warnings.simplefilter("default")
+            warnings.showwarning = _show_warning
             return COMMANDS[args.command][1](args)
     except StudyError as exc:
         print(f"kinfit: error: {exc}", file=sys.stderr)

@@ -236,7 +236,8 @@ class ReportBuilder:
         if fixed:
             blocks.append(Text("Held constant: " + ", ".join(fixed) + "."))
         blocks.append(Heading("Transport tests the campaign supports"))
-        rows, meanings = [], []
+        set_rows: list[tuple[str, ...]] = []
+        meanings: list[str] = []
         for factor, meaning in TEST_MEANING.items():
             label = FACTOR_LABEL[factor][0]
             sets = comparison_sets(study, factor)
@@ -246,19 +247,19 @@ class ReportBuilder:
                 continue
             meanings.append(f"{label} ({len(sets)} set{'s' if len(sets) != 1 else ''}): tests "
                             f"{meaning}")
-            rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
+            set_rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
                       ", ".join(factor_text(f, x) for f, x in s.fixed.items() if f in varied),
                       ", ".join(s.runs)) for s in sets]
         if "temperature" not in varied:
             meanings.append("temperature: one level only, so the activation energy is not "
                             "identified")
         blocks.append(Items(tuple(meanings)))
-        if rows:
+        if set_rows:
             blocks.append(self.table(
                 "Sets of runs that differ in one factor only (the other factors equal within "
                 "1 %): the classic transport tests; their statistical outcome is in the "
                 "transport diagnosis.", ("factor varied", "levels", "others held at", "runs"),
-                rows))
+                set_rows))
         return Section("campaign", "Campaign", tuple(blocks))
 
     def _parameters(self) -> Section:

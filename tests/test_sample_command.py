@@ -1,0 +1,145 @@
+"""``kinfit sample`` on a whole study: the posterior results contract, the per-run derived
+quantities, --require-converged, --resume and bad input.
+
+The study is the invented demo campaign (examples/demo, data generated from stated true
+parameters); chains here are short on purpose, so most are not converged. The sampler itself
+is checked against analytic posteriors and by simulation-based calibration in
+tests/test_sampling.py; these tests check what the command writes and how it behaves. The
+results contract is DESIGN.md's "Results contract" (posterior.json: {name: {median, q05, q95,
+hdi94, rhat, ess}} and the sampler settings walkers, steps, burn-in, seed).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from kinfit.cli import main
+from kinfit.fitting import FitOptions, fit
+from kinfit.study import load_study
+
+pytestmark = pytest.mark.filterwarnings("ignore::kinfit.errors.ConvergenceWarning")
+
+DEMO = Path(__file__).resolve().parents[1] / "examples" / "demo" / "study.toml"
+
+
+@pytest.fixture(scope="module")
+def fitted(tmp_path_factory):
+    """The demo fitted by least squares (no profile intervals), saved into a folder."""
+    folder = tmp_path_factory.mktemp("fit")
+    fit(load_study(DEMO), FitOptions(profile=False, progress=False)).save(folder)
+    return folder
+
+
+def _sample(fit_dir: Path, out: Path, *extra: str) -> int:
+    return main(["sample", str(DEMO), "--fit", str(fit_dir), "--out", str(out), "--quiet",
+                 *extra])
+
+
+@pytest.fixture(scope="module")
+def short_run(fitted, tmp_path_factory):
+    out = tmp_path_factory.mktemp("post")
+    code = _sample(fitted, out, "--steps", "300", "--seed", "3", "--walkers", "32")
+    return code, out
+
+
+def test_posterior_json_holds_the_results_contract(short_run, fitted):
+    code, out = short_run
+    assert code == 0  # unconverged but not asked to converge: exit 0 (README exit codes)
+    post = json.loads((out / "posterior.json").read_text())
+    fitted_names = set(json.loads((fitted / "results.json").read_text())["parameters"])
+    varying = {n for n, p in json.loads((fitted / "results.json").read_text())["parameters"]
+               .items() if p["vary"]}
+    assert varying <= set(post["parameters"]) <= fitted_names | {"sigma"}
+    for name, entry in post["parameters"].items():
+        for key in ("median", "q05", "q95", "rhat", "ess"):
+            assert math.isfinite(entry[key]), (name, key)
+        lo, hi = entry["hdi94"]
+        assert entry["q05"] <= entry["median"] <= entry["q95"], name
+        assert lo <= entry["median"] <= hi, name
+    sampler = post["sampler"]
+    assert sampler["walkers"] == 32 and sampler["steps"] == 300 and sampler["seed"] == 3
+    assert 0 <= sampler["burn_in"] <= 150 and sampler["moves"] == "de"
+    assert post["convergence"]["converged"] is False  # 300 steps cannot meet the rule
+    assert post["convergence"]["reasons"]
+    assert post["manifest"]["inputs"]
+
+
+def test_per_run_derived_quantities_and_regime_probabilities(short_run):
+    _, out = short_run
+    post = json.loads((out / "posterior.json").read_text())
+    runs = post["runs"]
+    assert len(runs) == 24
+    for rid, entry in runs.items():
+        probs = entry["regime_probability"]
+        assert set(probs) == {"kinetic", "film", "pore", "mixed"}
+        assert sum(probs.values()) == pytest.approx(1.0), rid
+        for key in ("effectiveness_factor", "weisz_prater", "carberry"):
+            q = entry[key]
+            assert q["q05"] <= q["median"] <= q["q95"], (rid, key)
+        assert 0.0 < entry["effectiveness_factor"]["q95"] <= 1.0 + 1e-9
+    # the demo's large particles at the high stirrer speed are pore-limited (examples/demo
+    # README): the posterior must put most of its weight there
+    assert runs["R08"]["regime_probability"]["pore"] > 0.5
+
+
+def test_draws_and_bands_files(short_run):
+    _, out = short_run
+    post = json.loads((out / "posterior.json").read_text())
+    draws = pd.read_csv(out / "posterior_draws.csv")
+    kept = (post["sampler"]["steps"] - post["sampler"]["burn_in"]) * post["sampler"]["walkers"]
+    assert len(draws) == kept
+    assert set(post["parameters"]) <= set(draws.columns)
+    bands = pd.read_csv(out / "posterior_bands.csv")
+    assert set(bands["run"]) == set(post["runs"])
+    assert np.all(bands["q05"] <= bands["q50"] + 1e-9)
+    assert np.all(bands["q50"] <= bands["q95"] + 1e-9)
+    # medians of the draws agree with the summary in posterior.json
+    assert draws["k_ref"].median() == pytest.approx(post["parameters"]["k_ref"]["median"])
+
+
+def test_require_converged_exits_1_and_says_why(fitted, tmp_path, capsys):
+    code = _sample(fitted, tmp_path, "--steps", "100", "--seed", "1", "--require-converged")
+    assert code == 1
+    assert "did not converge" in capsys.readouterr().err
+    assert (tmp_path / "posterior.json").is_file()  # what was sampled is written all the same
+
+
+def test_resume_gives_the_chain_asked_for(fitted, tmp_path):
+    # the issue's "an interrupted run resumed gives a chain as long as asked": stop at 150
+    # steps, resume to 300; the chain equals an uninterrupted 300-step chain draw for draw
+    first = tmp_path / "resumed"
+    assert _sample(fitted, first, "--steps", "150", "--seed", "9") == 0
+    assert _sample(fitted, first, "--steps", "300", "--seed", "9", "--resume") == 0
+    resumed = json.loads((first / "posterior.json").read_text())
+    assert resumed["sampler"]["steps"] == 300 and resumed["sampler"]["resumed_from"] == 150
+    straight = tmp_path / "straight"
+    assert _sample(fitted, straight, "--steps", "300", "--seed", "9") == 0
+    a = pd.read_csv(first / "posterior_draws.csv")
+    b = pd.read_csv(straight / "posterior_draws.csv")
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_warnings_are_one_plain_line(fitted, tmp_path, capsys):
+    # a chain too short to converge warns on stderr as "kinfit: warning: ...", without the
+    # Python source file and line that the default warning format shows
+    assert _sample(fitted, tmp_path, "--steps", "60", "--seed", "2") == 0
+    err = capsys.readouterr().err
+    assert "kinfit: warning: " in err and "not converged" in err
+    assert ".py:" not in err and "sample_problem(" not in err.replace("sample_problem: ", "")
+
+
+def test_bad_input_names_the_problem(fitted, tmp_path, capsys):
+    assert main(["sample", str(DEMO), "--fit", str(tmp_path / "none"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "no results at" in err and "kinfit fit" in err
+    assert _sample(fitted, tmp_path, "--steps", "10", "--moves", "gibbs") == 2
+    assert "invalid choice: 'gibbs'" in capsys.readouterr().err
+    # resuming without a checkpoint says what to do
+    assert _sample(fitted, tmp_path / "empty", "--steps", "10", "--resume") == 2
+    assert "checkpoint" in capsys.readouterr().err
