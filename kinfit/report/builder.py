@@ -595,7 +595,7 @@ class ReportBuilder:
             s = ["kinfit", "sample", study, "--fit", fit_dir]
             for key, flag in (("seed", "--seed"), ("walkers", "--walkers"),
                               ("max_steps", "--steps"), ("chunk", "--chunk"),
-                              ("tau_multiple", "--tau-multiple")):
+                              ("tau_multiple", "--tau-multiple"), ("moves", "--moves")):
                 if sampler.get(key) is not None:
                     s += [flag, str(sampler[key])]
             lines.append(shlex.join(s))
