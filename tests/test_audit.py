@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.audit import (
     FILM_EA_LIMIT,
@@ -29,44 +30,24 @@ from kinfit.audit import (
 )
 from kinfit.errors import StudyError
 from kinfit.fitting import FitOptions, fit_model, main_spec
-from kinfit.model import Model, ModelSpec
+from kinfit.model import ModelSpec
 from kinfit.study import load_study
 
-TRUTH = """\
-[data]
-runs = "runs.csv"
-observations = "observations.csv"
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-[kinetics]
-rate_law = "power"
-reference_temperature = "60 degC"
-[film]
-model = "agitation"
-reference_speed = "800 rpm"
-reference_diameter = "{dp} um"
-[pellet]
-diffusivity = "direct"
-[parameters.k_ref]
-value = "{k} mol/(kg*s)"
-[parameters.activation_energy]
-value = "{Ea} kJ/mol"
-[parameters.order]
-value = {n}
-[parameters.effective_diffusivity]
-value = "{De} m^2/s"
-vary = false
-[parameters.kc_ref]
-value = "{kc} m/s"
-vary = false
-[parameters.agitation_exponent]
-value = 0.5
-vary = false
-[parameters.size_exponent]
-value = 0.5
-vary = false
-"""
+
+def truth_study(k: float, Ea: float, n: float, De: float, kc: float, dp: float) -> str:
+    """The study at the true values: k_ref [mol/(kg s)], Ea [kJ/mol], order, De [m^2/s] and kc
+    [m/s] (both fixed), agitation film referred to 800 rpm and the campaign's diameter dp
+    [um]."""
+    return study_text(
+        {"k_ref": f"{k} mol/(kg*s)", "activation_energy": f"{Ea} kJ/mol", "order": n,
+         "effective_diffusivity": f"{De} m^2/s", "kc_ref": f"{kc} m/s",
+         "agitation_exponent": 0.5, "size_exponent": 0.5},
+        vary={"effective_diffusivity": False, "kc_ref": False, "agitation_exponent": False,
+              "size_exponent": False},
+        reference_temperature="60 degC", reference_speed="800 rpm",
+        reference_diameter=f"{dp} um", pellet="direct", observations="observations.csv",
+    )
+
 
 CLAIM = """\
 [claim]
@@ -95,29 +76,18 @@ PORE = dict(k=1.0, Ea=80, n=1.0, De=2e-10, kc=1e-3, dp=500)
 def campaign(folder: Path, truth: dict, *, sigma: float = 3.0, seed: int = 7):
     """Six batch runs (50, 60, 70 degC x 0.5, 1 mol/L) at one speed and one particle size,
     generated with Model.predict at the true values plus seeded Gaussian noise."""
-    folder.mkdir(parents=True, exist_ok=True)
-    (folder / "truth.toml").write_text(TRUTH.format(**truth))
-    runs = ["run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
-            "catalyst_loading [g/L],initial_concentration [mol/L]"]
-    obs = ["run,time [min],concentration [mol/m^3]"]
     times = np.linspace(0.0, 120.0, 9)
-    k = 0
+    runs, obs = [], []
     for T in (50, 60, 70):
         for c0 in (0.5, 1.0):
-            k += 1
-            runs.append(f"R{k},{T},800,{truth['dp']},2,{c0}")
-            obs += [f"R{k},{t:g},{c0 * 1000}" for t in times]
-    (folder / "runs.csv").write_text("\n".join(runs) + "\n")
-    (folder / "observations.csv").write_text("\n".join(obs) + "\n")
-    s = load_study(folder / "truth.toml")
-    m = Model(main_spec(s), s)
-    f = m.predict(m.x0[None, :])[0]
+            runs.append((f"R{len(runs) + 1}", T, 800, truth["dp"], 2, c0))
+            obs += [(runs[-1][0], f"{t:g}", c0 * 1000) for t in times]
+    path = write_study(folder, truth_study(**truth), runs_csv(runs), profiles_csv(obs),
+                       study_file="truth.toml", observations_file="observations.csv")
+    _, m, f = simulate(path, main_spec)
     y = np.maximum(f + np.random.default_rng(seed).normal(0.0, sigma, f.size), 0.0)
-    ids = np.asarray(m.run_ids)[m.run_index]
-    lines = ["run,time [min],concentration [mol/m^3]"]
-    lines += [f"{r},{t / 60:.8g},{c:.8g}" for r, t, c in zip(ids, m.times, y, strict=True)]
-    (folder / "observations.csv").write_text("\n".join(lines) + "\n")
-    return load_study(folder / "truth.toml"), m
+    (folder / "observations.csv").write_text(profiles_csv(profile_rows(m, y, fmt=".8g")))
+    return load_study(path), m
 
 
 def apparent_fit(study) -> dict[str, float]:

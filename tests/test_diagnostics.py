@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 from scipy import stats
 from scipy.integrate import solve_ivp
+from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.criteria import Thresholds
 from kinfit.diagnose.falsified import (
@@ -46,40 +47,12 @@ from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import comparison_sets, load_study
 
+
 # ----------------------------------------------------------------------------- synthetic studies
-STUDY = """\
-[study]
-name = "{name}"
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-[kinetics]
-rate_law = "power"
-reference_temperature = "55 degC"
-[film]
-model = "{film}"
-{film_options}
-[pellet]
-diffusivity = "{pellet}"
-[parameters.k_ref]
-value = "{k_ref}"
-[parameters.activation_energy]
-value = "{ea}"
-[parameters.order]
-value = {order}
-{extra}
-"""
-
-AGITATION = """\
-reference_speed = "600 rpm"
-reference_diameter = "100 um"
-"""
-
-HEAD = ("run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
-        "catalyst_loading [g/L],initial_concentration [mol/L]\n")
+def _study(parameters: dict, *, name: str, film: str, pellet: str) -> str:
+    """A power-law study at 55 degC reference (agitation film referred to 600 rpm, 100 um)."""
+    return study_text(parameters, name=name, reference_temperature="55 degC",
+                      reference_diameter="100 um", film=film, pellet=pellet)
 
 
 def write_campaign(folder: Path, rows, *, k_ref="0.05 mol/(kg*s)", ea="60 kJ/mol", order=1.0,
@@ -91,41 +64,30 @@ def write_campaign(folder: Path, rows, *, k_ref="0.05 mol/(kg*s)", ea="60 kJ/mol
     rows: (run, T [degC], N [rpm], dp [um], w [g/L], C0 [mol/L]). Profiles get Gaussian noise
     of ``sigma`` mol/m^3; rates get relative noise ``rel_sigma`` on ``n_rep`` replicates.
     """
-    folder.mkdir(parents=True, exist_ok=True)
-    extra = ""
+    parameters = {"k_ref": k_ref, "activation_energy": ea, "order": order}
     if film == "agitation":
-        extra += (f'[parameters.kc_ref]\nvalue = "{kc_ref}"\n[parameters.agitation_exponent]\n'
-                  f"value = {a}\n[parameters.size_exponent]\nvalue = {b}\n")
+        parameters.update(kc_ref=kc_ref, agitation_exponent=a, size_exponent=b)
     if De is not None:
-        extra += f'[parameters.effective_diffusivity]\nvalue = "{De}"\n'
-    (folder / "study.toml").write_text(STUDY.format(
-        name=name, film=film, film_options=AGITATION if film == "agitation" else "",
-        pellet="none" if De is None else "direct", k_ref=k_ref, ea=ea, order=order,
-        extra=extra))
-    (folder / "runs.csv").write_text(HEAD + "".join(",".join(map(str, r)) + "\n" for r in rows))
+        parameters["effective_diffusivity"] = De
+    text = _study(parameters, name=name, film=film, pellet="none" if De is None else "direct")
     if kind == "profile":
         t = np.linspace(0.0, t_end, n_t)
-        obs = "run,time [min],concentration [mol/L]\n" + "".join(
-            f"{r[0]},{ti},{r[5]}\n" for r in rows for ti in t)
+        obs = profiles_csv([(r[0], ti, r[5]) for r in rows for ti in t], unit="mol/L")
     else:
         obs = "run,rate [mol/(kg*s)]\n" + "".join(f"{r[0]},0.01\n" * n_rep for r in rows)
-    (folder / "obs.csv").write_text(obs)
-    s = load_study(folder / "study.toml")
-    m = Model(ModelSpec.from_study(s), s)
-    y = m.predict(m.x0[None, :])[0]
+    path = write_study(folder, text, runs_csv(rows), obs)
+    _, m, y = simulate(path)
     rng = np.random.default_rng(seed)
     ids = np.asarray(m.run_ids)[m.run_index]
     if kind == "profile":
         yn = np.maximum(y + rng.normal(loc=0.0, scale=sigma, size=y.size), 0.0)
-        text = "run,time [min],concentration [mol/L]\n" + "".join(
-            f"{i},{float(tt) / 60.0!r},{float(c) / 1000.0!r}\n" for i, tt, c in zip(ids, m.times, yn,
-                                                                      strict=True))
+        text = profiles_csv(profile_rows(m, yn, fmt="repr", scale=1000.0), unit="mol/L")
     else:
         yn = y * (1.0 + rng.normal(loc=0.0, scale=rel_sigma, size=y.size))
         text = "run,rate [mol/(kg*s)]\n" + "".join(
             f"{i},{float(v)!r}\n" for i, v in zip(ids, yn, strict=True))
     (folder / "obs.csv").write_text(text)
-    study = load_study(folder / "study.toml")
+    study = load_study(path)
     return study, m.x0.copy()
 
 
@@ -258,7 +220,7 @@ def test_falsified_kinetics_warns_of_pore_diffusion(tmp_path):
     E = 1.0e5
     temps = [480.0, 490.0, 500.0, 510.0, 520.0]
     rows = [(f"T{i}", T - 273.15, 600, 100, 2, 0.5) for i, T in enumerate(temps)]
-    (tmp_path / "runs.csv").write_text(HEAD + "".join(",".join(map(str, r)) + "\n" for r in rows))
+    (tmp_path / "runs.csv").write_text(runs_csv(rows))
     rng = np.random.default_rng(5)
     lines = ["run,rate [mol/(kg*s)]"]
     for (rid, *_), T in zip(rows, temps, strict=True):
@@ -266,9 +228,9 @@ def test_falsified_kinetics_warns_of_pore_diffusion(tmp_path):
         r = 0.01 * k * _eta_sphere_radius(20.0 * np.sqrt(k))
         lines += [f"{rid},{float(v)!r}" for v in r * (1 + rng.normal(scale=0.01, size=3))]
     (tmp_path / "obs.csv").write_text("\n".join(lines) + "\n")
-    (tmp_path / "study.toml").write_text(STUDY.format(
-        name="pore", film="none", film_options="", pellet="none", k_ref="0.01 mol/(kg*s)",
-        ea="100 kJ/mol", order=1.0, extra=""))
+    (tmp_path / "study.toml").write_text(_study(
+        {"k_ref": "0.01 mol/(kg*s)", "activation_energy": "100 kJ/mol", "order": 1.0},
+        name="pore", film="none", pellet="none"))
     study = load_study(tmp_path / "study.toml")
     res = falsified_kinetics(study, intrinsic_activation_energy=E, intrinsic_order=1.0)
     d = res.to_dict()

@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import builtins
 import contextlib
-import signal
 import sys
 from collections.abc import Callable, Iterator
 from typing import Any
@@ -32,6 +31,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.constants import R as GAS_CONSTANT
+from studies import alarm
 
 from kinfit.errors import StudyError
 from kinfit.expressions import (
@@ -78,24 +78,6 @@ def audited() -> Iterator[list[str]]:
         yield _EVENTS
     finally:
         _EVENTS = None
-
-
-class Hang(BaseException):
-    """The alarm fired."""
-
-
-@contextlib.contextmanager
-def alarm(seconds: float) -> Iterator[None]:
-    def fire(signum: int, frame: Any) -> None:
-        raise Hang(f"longer than {seconds:g} s")
-
-    old = signal.signal(signal.SIGALRM, fire)
-    signal.setitimer(signal.ITIMER_REAL, seconds)
-    try:
-        yield
-    finally:
-        signal.setitimer(signal.ITIMER_REAL, 0)
-        signal.signal(signal.SIGALRM, old)
 
 
 @contextlib.contextmanager

@@ -19,10 +19,8 @@ import contextlib
 import io
 import json
 import math
-import signal
 import tempfile
 import traceback
-from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -30,6 +28,7 @@ from typing import Any
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from studies import Hang, alarm
 
 from kinfit.cli import main
 from kinfit.errors import KinfitError, StudyError
@@ -370,24 +369,9 @@ def any_case() -> st.SearchStrategy[Case]:
 # ------------------------------------------------------------------------------------------
 # running a case
 # ------------------------------------------------------------------------------------------
-class Hang(BaseException):
-    """Raised by the alarm when a case runs past its limit (BaseException: never swallowed)."""
-
-
-@contextlib.contextmanager
-def alarm_guard(seconds: float) -> Iterator[None]:
+def alarm_guard(seconds: float) -> contextlib.AbstractContextManager[None]:
     """Raise :class:`Hang` in the main thread if the block runs longer than ``seconds``."""
-
-    def on_alarm(signum: int, frame: Any) -> None:
-        raise Hang(f"case ran longer than {seconds:g} s")
-
-    old = signal.signal(signal.SIGALRM, on_alarm)
-    signal.setitimer(signal.ITIMER_REAL, seconds)
-    try:
-        yield
-    finally:
-        signal.setitimer(signal.ITIMER_REAL, 0)
-        signal.signal(signal.SIGALRM, old)
+    return alarm(seconds, "case ran longer than {seconds:g} s")
 
 
 def write_case(folder: Path, case: Case) -> Path:

@@ -7,71 +7,36 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from studies import Raw, model_of, profiles_csv, runs_csv, study_text, write_study
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.model import Model, ModelSpec
+from kinfit.model import Model
 from kinfit.study import load_study
 from kinfit.transport.pellet import eta_first_order
 
-STUDY = """\
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
+#: the study's text with its order left as ``{order}`` (filled by :func:`make_model`)
+STUDY = study_text(
+    {"k_ref": "0.2 mol/(kg*s)", "activation_energy": "60 kJ/mol", "order": Raw("{order}"),
+     "effective_diffusivity": "3e-10 m^2/s", "kc_ref": "4e-5 m/s", "agitation_exponent": 0.6,
+     "size_exponent": 0.5},
+    reference_temperature="55 degC", reference_diameter="80 um",
+)
 
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-
-[kinetics]
-rate_law = "power"
-reference_temperature = "55 degC"
-
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "80 um"
-
-[parameters.k_ref]
-value = "0.2 mol/(kg*s)"
-[parameters.activation_energy]
-value = "60 kJ/mol"
-[parameters.order]
-value = {order}
-[parameters.effective_diffusivity]
-value = "3e-10 m^2/s"
-[parameters.kc_ref]
-value = "4e-5 m/s"
-[parameters.agitation_exponent]
-value = 0.6
-[parameters.size_exponent]
-value = 0.5
-"""
-
-RUNS = """\
-run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],catalyst_loading [g/L],initial_concentration [mol/L]
-S1,55,300,30,2,0.8
-S2,55,1200,30,2,0.8
-S3,55,300,250,2,0.8
-S4,55,1200,250,2,0.8
-S5,70,1200,250,2,0.8
-"""
+RUNS = runs_csv([("S1", 55, 300, 30, 2, 0.8), ("S2", 55, 1200, 30, 2, 0.8),
+                 ("S3", 55, 300, 250, 2, 0.8), ("S4", 55, 1200, 250, 2, 0.8),
+                 ("S5", 70, 1200, 250, 2, 0.8)])
 
 
 def _obs(runs: str) -> str:
-    lines = ["run,time [min],concentration [mol/L]"]
-    for line in runs.strip().splitlines()[1:]:
-        rid = line.split(",")[0]
-        lines += [f"{rid},{t},0.8" for t in (0, 10, 20, 40, 60)]
-    return "\n".join(lines) + "\n"
+    ids = [line.split(",")[0] for line in runs.strip().splitlines()[1:]]
+    return profiles_csv([(rid, t, 0.8) for rid in ids for t in (0, 10, 20, 40, 60)],
+                        unit="mol/L")
 
 
 def make_model(tmp: Path, *, order: float = 1.5, runs: str = RUNS, study: str = STUDY
                ) -> Model:
-    (tmp / "study.toml").write_text(study.format(order=order))
-    (tmp / "runs.csv").write_text(runs)
-    (tmp / "obs.csv").write_text(_obs(runs))
-    s = load_study(tmp / "study.toml")
-    return Model(ModelSpec.from_study(s), s)
+    path = write_study(tmp, study.format(order=order), runs, _obs(runs))
+    return model_of(load_study(path))
 
 
 def test_eta_does_not_change_with_stirrer_speed(tmp_path):

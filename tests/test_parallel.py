@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from studies import simulate, study_text
 
 from kinfit.errors import StudyError
 from kinfit.estimate.least_squares import fit_problem
@@ -60,42 +61,18 @@ DIAMETERS_UM = (30.0, 250.0)
 LOADINGS_G_L = (1.0, 2.5)
 C0_MOL_L = (0.8, 0.5, 1.1)
 
-STUDY_TEMPLATE = """\
-# INVENTED synthetic campaign written by tests/test_parallel.py::write_campaign
-[study]
-name = "{name}"
 
-[data]
-runs = "runs.csv"
-observations = "observations.csv"
-
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-
-[kinetics]
-rate_law = "power"
-reference_temperature = "55 degC"
-reference_concentration = "1 mol/L"
-
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "100 um"
-
-[pellet]
-diffusivity = "{pellet}"
-"""
-
-
-def _parameter_block(values: dict[str, object], vary: set[str], pellet: str) -> str:
-    out = []
-    for name, value in values.items():
-        if name == "effective_diffusivity" and pellet == "none":
-            continue
-        text = f'"{value}"' if isinstance(value, str) else repr(value)
-        out.append(f"[parameters.{name}]\nvalue = {text}\nvary = {str(name in vary).lower()}\n")
-    return "\n".join(out)
+def _study(name: str, values: dict[str, object], vary: set[str], pellet: str) -> str:
+    """The campaign's study text: ``values`` as parameter values, ``vary`` free, the rest fixed
+    (no effective diffusivity without a pellet model)."""
+    kept = {k: v for k, v in values.items()
+            if not (k == "effective_diffusivity" and pellet == "none")}
+    return study_text(
+        kept, vary={k: k in vary for k in kept}, name=name,
+        comment="INVENTED synthetic campaign written by tests/test_parallel.py::write_campaign",
+        reference_temperature="55 degC", kinetics={"reference_concentration": "1 mol/L"},
+        reference_diameter="100 um", pellet=pellet, observations="observations.csv",
+    )
 
 
 def _run_rows(n_runs: int) -> pd.DataFrame:
@@ -135,16 +112,14 @@ def write_campaign(
     Path
         The study file.
     """
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model import Model
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     runs = _run_rows(n_runs)
     runs.to_csv(folder / "runs.csv", index=False)
     truth_file = folder / "truth.toml"
-    truth_file.write_text(STUDY_TEMPLATE.format(name="truth", pellet=pellet)
-                          + _parameter_block(TRUTH, set(TRUTH), pellet), encoding="utf-8")
+    truth_file.write_text(_study("truth", TRUTH, set(TRUTH), pellet), encoding="utf-8")
 
     def write_obs(times: dict[str, np.ndarray], conc: dict[str, np.ndarray] | None) -> None:
         rows = []
@@ -156,9 +131,8 @@ def write_campaign(
         pd.DataFrame(rows).to_csv(folder / "observations.csv", index=False)
 
     def predict() -> tuple[Model, np.ndarray]:
-        study = load_study(truth_file)
-        model = Model(ModelSpec.from_study(study), study)
-        return model, model.predict(model.x0[None, :])[0]
+        _, model, pred = simulate(truth_file)
+        return model, pred
 
     write_obs({rid: np.linspace(0.0, 3000.0, 300) for rid in runs["run"]}, None)
     model, pred = predict()
@@ -177,8 +151,8 @@ def write_campaign(
     truth_file.unlink()
     values = {k: (START[k] if k in vary else TRUTH[k]) for k in TRUTH}
     study_file = folder / "study.toml"
-    study_file.write_text(STUDY_TEMPLATE.format(name=f"synthetic-{n_runs}", pellet=pellet)
-                          + _parameter_block(values, set(vary), pellet), encoding="utf-8")
+    study_file.write_text(_study(f"synthetic-{n_runs}", values, set(vary), pellet),
+                          encoding="utf-8")
     return study_file
 
 

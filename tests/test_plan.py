@@ -14,9 +14,17 @@ from itertools import combinations_with_replacement
 import numpy as np
 import pandas as pd
 import pytest
+from studies import (
+    numbered,
+    profile_rows,
+    profiles_csv,
+    runs_csv,
+    simulate,
+    study_text,
+    write_study,
+)
 
 from kinfit.fitting import FitOptions, fit
-from kinfit.model import Model
 from kinfit.plan import (
     _logdet,
     add_plan_arguments,
@@ -28,41 +36,14 @@ from kinfit.plan import (
 from kinfit.predict import load_fitted
 from kinfit.study import load_study
 
-STUDY = """\
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-[kinetics]
-rate_law = "power"
-reference_temperature = "60 degC"
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "100 um"
-[pellet]
-diffusivity = "direct"
-[parameters.k_ref]
-value = "0.05 mol/(kg*s)"
-[parameters.activation_energy]
-value = "70 kJ/mol"
-[parameters.order]
-value = 1.0
-vary = false
-[parameters.effective_diffusivity]
-value = "2e-10 m^2/s"
-vary = false
-[parameters.kc_ref]
-value = "5e-5 m/s"
-[parameters.agitation_exponent]
-value = 0.5
-vary = false
-[parameters.size_exponent]
-value = 0.5
-vary = false
-"""
+STUDY = study_text(
+    {"k_ref": "0.05 mol/(kg*s)", "activation_energy": "70 kJ/mol", "order": 1.0,
+     "effective_diffusivity": "2e-10 m^2/s", "kc_ref": "5e-5 m/s", "agitation_exponent": 0.5,
+     "size_exponent": 0.5},
+    vary={"order": False, "effective_diffusivity": False, "agitation_exponent": False,
+          "size_exponent": False},
+    reference_temperature="60 degC", reference_diameter="100 um", pellet="direct",
+)
 ROWS = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (50, 200)]
 R_GAS, RHO, DE = 8.314462618, 1500.0, 2e-10
 
@@ -72,26 +53,16 @@ def fitted_campaign(tmp_path_factory):
     """A first-order campaign with film and pore resistance, made with kinfit's physics at the
     values above plus seeded noise (sigma 3 mol/m^3), fitted without profiles."""
     folder = tmp_path_factory.mktemp("plan")
-    (folder / "study.toml").write_text(STUDY)
-    runs = ["run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
-            "catalyst_loading [g/L],initial_concentration [mol/L]"]
-    runs += [f"R{i + 1}," + ",".join(map(str, r)) for i, r in enumerate(ROWS)]
-    (folder / "runs.csv").write_text("\n".join(runs) + "\n")
     times = np.linspace(0, 120, 8)
-    obs = ["run,time [min],concentration [mol/m^3]"]
-    obs += [f"R{i + 1},{t:g},500" for i in range(len(ROWS)) for t in times]
-    (folder / "obs.csv").write_text("\n".join(obs) + "\n")
-    study = load_study(folder / "study.toml")
+    path = write_study(folder, STUDY, runs_csv(numbered(ROWS)),
+                       profiles_csv([(f"R{i + 1}", f"{t:g}", 500) for i in range(len(ROWS))
+                                     for t in times]))
     from kinfit.fitting import main_spec
 
-    model = Model(main_spec(study), study)
-    y = model.predict(model.x0[None, :])[0]
+    _, model, y = simulate(path, main_spec)
     y = y + np.random.default_rng(4).normal(0.0, 3.0, y.size)
-    ids = np.asarray(model.run_ids)[model.run_index]
-    lines = ["run,time [min],concentration [mol/m^3]"]
-    lines += [f"{r},{t / 60:.8g},{c:.8g}" for r, t, c in zip(ids, model.times, y, strict=True)]
-    (folder / "obs.csv").write_text("\n".join(lines) + "\n")
-    study = load_study(folder / "study.toml")
+    (folder / "obs.csv").write_text(profiles_csv(profile_rows(model, y, fmt=".8g")))
+    study = load_study(path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res = fit(study, FitOptions(profile=False))

@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from studies import numbered, profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.errors import RegimeWarning, StudyError
 from kinfit.fitting import FitOptions, fit
@@ -29,49 +30,6 @@ from kinfit.predict import (
     predict_conditions,
     run_predict_command,
 )
-from kinfit.study import load_study
-
-STUDY = """\
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-[kinetics]
-rate_law = "power"
-reference_temperature = "60 degC"
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "100 um"
-[pellet]
-diffusivity = "direct"
-[parameters.k_ref]
-value = "{k} mol/(kg*s)"
-vary = {vary_k}
-[parameters.activation_energy]
-value = "65 kJ/mol"
-vary = {vary_k}
-[parameters.order]
-value = {n}
-vary = {vary_order}
-[parameters.effective_diffusivity]
-value = "3e-10 m^2/s"
-vary = false
-[parameters.kc_ref]
-value = "{kc} m/s"
-vary = {vary_kc}
-[parameters.agitation_exponent]
-value = 0.5
-vary = false
-[parameters.size_exponent]
-value = 0.5
-vary = false
-"""
-
-RUN_HEADER = ("run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
-              "catalyst_loading [g/L],initial_concentration [mol/L]")
 
 
 def synthetic(folder: Path, rows, *, kind: str = "profile", k: float = 0.05, n: float = 1.0,
@@ -79,25 +37,25 @@ def synthetic(folder: Path, rows, *, kind: str = "profile", k: float = 0.05, n: 
               vary_k: bool = True, sigma: float = 3.0, seed: int = 3):
     """A campaign made with kinfit's own physics at the stated true values plus seeded noise;
     returns (study with noisy data, model at the truth, true parameter row)."""
-    folder.mkdir(parents=True, exist_ok=True)
-    (folder / "study.toml").write_text(STUDY.format(
-        k=k, n=n, kc=kc, vary_order=str(vary_order).lower(), vary_kc=str(vary_kc).lower(),
-        vary_k=str(vary_k).lower()))
-    runs = [RUN_HEADER] + [f"R{i + 1}," + ",".join(map(str, r)) for i, r in enumerate(rows)]
-    (folder / "runs.csv").write_text("\n".join(runs) + "\n")
+    text = study_text(
+        {"k_ref": f"{k} mol/(kg*s)", "activation_energy": "65 kJ/mol", "order": n,
+         "effective_diffusivity": "3e-10 m^2/s", "kc_ref": f"{kc} m/s",
+         "agitation_exponent": 0.5, "size_exponent": 0.5},
+        vary={"k_ref": vary_k, "activation_energy": vary_k, "order": vary_order,
+              "effective_diffusivity": False, "kc_ref": vary_kc, "agitation_exponent": False,
+              "size_exponent": False},
+        reference_temperature="60 degC", reference_diameter="100 um", pellet="direct",
+    )
     if kind == "profile":
-        obs = ["run,time [min],concentration [mol/m^3]"]
-        obs += [f"R{i + 1},{t:g},{r[4] * 1000}" for i, r in enumerate(rows)
-                for t in np.linspace(0, 90, 7)]
+        obs = profiles_csv([(f"R{i + 1}", f"{t:g}", r[4] * 1000) for i, r in enumerate(rows)
+                            for t in np.linspace(0, 90, 7)])
     else:
-        obs = ["run,rate [mol/(kg*s)]"] + [f"R{i + 1},0" for i in range(len(rows)) for _ in range(3)]
-    (folder / "obs.csv").write_text("\n".join(obs) + "\n")
-    study = load_study(folder / "study.toml")
+        obs = "run,rate [mol/(kg*s)]\n" + "".join(f"R{i + 1},0\n" for i in range(len(rows))
+                                                  for _ in range(3))
     from kinfit.fitting import main_spec
 
-    model = Model(main_spec(study), study)
+    study, model, y = simulate(write_study(folder, text, runs_csv(numbered(rows)), obs), main_spec)
     x_true = model.x0.copy()
-    y = model.predict(x_true[None, :])[0]
     noisy = with_data(study, y + np.random.default_rng(seed).normal(0, sigma, y.size))
     return noisy, model, x_true
 

@@ -26,47 +26,23 @@ import numpy as np
 import pandas as pd
 import pytest
 from PIL import Image
+from studies import profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.errors import StudyError
 
-STUDY = """\
-[study]
-name = "synthetic report check (invented data)"
 
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
+def _study(k_ref: float, kc_ref: float, a: float) -> str:
+    """The study text at these values of k_ref [mol/(kg s)], kc_ref [m/s] and the agitation
+    exponent (power law, agitation film, no pellet model)."""
+    return study_text(
+        {"k_ref": f"{k_ref} mol/(kg*s)", "activation_energy": "60 kJ/mol", "order": 1.0,
+         "kc_ref": f"{kc_ref} m/s", "agitation_exponent": a,
+         "size_exponent": {"value": 0.5, "vary": False}},
+        name="synthetic report check (invented data)", reference_temperature="50 degC",
+        reference_diameter="100 um", pellet="none",
+    )
 
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
 
-[kinetics]
-rate_law = "power"
-reference_temperature = "50 degC"
-
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "100 um"
-
-[pellet]
-diffusivity = "none"
-
-[parameters.k_ref]
-value = "{k_ref} mol/(kg*s)"
-[parameters.activation_energy]
-value = "60 kJ/mol"
-[parameters.order]
-value = 1.0
-[parameters.kc_ref]
-value = "{kc_ref} m/s"
-[parameters.agitation_exponent]
-value = {a}
-[parameters.size_exponent]
-value = 0.5
-vary = false
-"""
 #: (run, T [degC], N [rpm], dp [um]); loading 2 g/L and C0 0.5 mol/L for all
 RUNS = [("S1", 40, 300, 50), ("S2", 40, 900, 50), ("S3", 60, 300, 100), ("S4", 60, 900, 100),
         ("S5", 60, 900, 200), ("S6", 50, 600, 100)]
@@ -76,33 +52,24 @@ START = {"k_ref": 0.04, "kc_ref": 8e-6, "a": 0.4}
 NOISE = 2.0  # mol/m^3
 
 
-def _write_observations(folder: Path, conc: np.ndarray) -> None:
-    rows = [{"run": rid, "time [min]": t, "concentration [mol/m^3]": round(float(c), 4)}
-            for i, (rid, *_) in enumerate(RUNS)
-            for t, c in zip(TIMES_MIN, conc[i * TIMES_MIN.size:(i + 1) * TIMES_MIN.size],
-                            strict=True)]
-    pd.DataFrame(rows).to_csv(folder / "obs.csv", index=False)
+def _observations(conc: np.ndarray) -> str:
+    """Observation table text: the runs' concentrations [mol/m^3] (rounded to 4 decimals) at
+    TIMES_MIN."""
+    n = TIMES_MIN.size
+    return profiles_csv([(rid, t, round(float(c), 4)) for i, (rid, *_) in enumerate(RUNS)
+                         for t, c in zip(TIMES_MIN, conc[i * n:(i + 1) * n], strict=True)])
 
 
 def make_study(folder: Path) -> Path:
     """Write the synthetic campaign (invented data) and its study file; return the path."""
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
-
-    folder.mkdir(parents=True, exist_ok=True)
-    pd.DataFrame([{"run": r, "temperature [degC]": T, "stirrer_speed [rpm]": N,
-                   "particle_diameter [um]": dp, "catalyst_loading [g/L]": 2.0,
-                   "initial_concentration [mol/L]": 0.5} for r, T, N, dp in RUNS]
-                 ).to_csv(folder / "runs.csv", index=False)
-    _write_observations(folder, np.full(len(RUNS) * TIMES_MIN.size, 500.0))
-    path = folder / "study.toml"
-    path.write_text(STUDY.format(**TRUTH))
-    truth = load_study(path)
-    model = Model(ModelSpec.from_study(truth), truth)
-    clean = model.predict(model.x0[None, :])[0]
+    runs = runs_csv([(r, T, N, dp, 2.0, 0.5) for r, T, N, dp in RUNS])
+    path = write_study(folder, _study(**TRUTH), runs,
+                       _observations(np.full(len(RUNS) * TIMES_MIN.size, 500.0)))
+    _, _, clean = simulate(path)
     rng = np.random.default_rng(seed=20261201)
-    _write_observations(folder, clean + rng.normal(loc=0.0, scale=NOISE, size=clean.size))
-    path.write_text(STUDY.format(**START))
+    (folder / "obs.csv").write_text(
+        _observations(clean + rng.normal(loc=0.0, scale=NOISE, size=clean.size)))
+    path.write_text(_study(**START))
     return path
 
 

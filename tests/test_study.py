@@ -9,52 +9,23 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+import studies
+from studies import runs_csv, study_text
 
 from kinfit.cli import main
 from kinfit.errors import StudyError
 from kinfit.study import comparison_sets, load_study
 from kinfit.units import parse_quantity, to_si
 
-STUDY = """\
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
+STUDY = study_text(
+    {"k_ref": "0.05 mol/(kg*s)", "activation_energy": "60 kJ/mol", "order": 1.0,
+     "effective_diffusivity": "1e-9 m^2/s", "kc_ref": "1e-4 m/s", "agitation_exponent": 0.5,
+     "size_exponent": 0.5},
+    reference_temperature="50 degC", reference_diameter="50 um",
+)
 
-[catalyst]
-geometry = "sphere"
-particle_density = "1500 kg/m^3"
-
-[kinetics]
-rate_law = "power"
-reference_temperature = "50 degC"
-
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "50 um"
-
-[parameters.k_ref]
-value = "0.05 mol/(kg*s)"
-[parameters.activation_energy]
-value = "60 kJ/mol"
-[parameters.order]
-value = 1.0
-[parameters.effective_diffusivity]
-value = "1e-9 m^2/s"
-[parameters.kc_ref]
-value = "1e-4 m/s"
-[parameters.agitation_exponent]
-value = 0.5
-[parameters.size_exponent]
-value = 0.5
-"""
-
-RUNS = """\
-run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],catalyst_loading [g/L],initial_concentration [mol/L]
-A1,45,300,50,2,0.5
-A2,45,900,50,2,0.5
-A3,45,900,150,2,0.5
-"""
+RUNS = runs_csv([("A1", 45, 300, 50, 2, 0.5), ("A2", 45, 900, 50, 2, 0.5),
+                 ("A3", 45, 900, 150, 2, 0.5)])
 
 OBS = """\
 run,time [min],concentration [mol/L]
@@ -71,10 +42,7 @@ A3,20,0.41
 
 
 def write_study(folder: Path, *, study: str = STUDY, runs: str = RUNS, obs: str = OBS) -> Path:
-    (folder / "study.toml").write_text(study)
-    (folder / "runs.csv").write_text(runs)
-    (folder / "obs.csv").write_text(obs)
-    return folder / "study.toml"
+    return studies.write_study(folder, study, runs, obs)
 
 
 def test_loads_and_converts_to_si(tmp_path):
