@@ -299,6 +299,12 @@ class RateLaw(DeclaredParameters, ABC):
         """The reaction order when the law is a pure power law, else None."""
         return None
 
+    def langmuir_hinshelwood_form(self, T: ArrayLike, p: Params
+                                  ) -> tuple[FloatArray, int] | None:
+        """(K(T) [m^3/mol], m) when the law is k K C/(1 + K C)^m, else None (lets the pellet
+        use the tabulated Langmuir-Hinshelwood effectiveness factor)."""
+        return None
+
     def __repr__(self) -> str:
         opts = ", ".join(f"{k}={v!r}" for k, v in self.options.items())
         return f"{type(self).__name__}({opts})"
@@ -447,6 +453,10 @@ class LangmuirHinshelwood(RateLaw):
         KC = K * np.maximum(C, 0.0)
         slope = k * K * (1.0 + (1.0 - self.m) * KC) / (1.0 + KC) ** (self.m + 1)
         return np.where(C >= 0, slope, 0.0)
+
+    def langmuir_hinshelwood_form(self, T, p):
+        _, K = _k_and_K(self, T, p, self.reference_temperature)
+        return np.asarray(K, dtype=float), self.m
 
 
 class ReversibleFirstOrder(RateLaw):

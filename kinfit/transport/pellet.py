@@ -19,6 +19,8 @@ Routes
 * :func:`eta_power_law`: n-th order kinetics, 0 <= n <= 3, from a table built once per geometry
   by phase-plane integration (:mod:`kinfit.transport._pellet_phase`) and interpolated by
   splines (:mod:`kinfit.transport._pellet_table`); at most 5e-6 relative error.
+* :func:`eta_langmuir_hinshelwood`: r = k K C/(1 + K C)^m, m = 1, 2, inside a domain of
+  K Cs, from a table built with the numerical solver (:mod:`kinfit.transport._lh_table`).
 * :func:`pellet_eta`: any rate law given as vectorised callables, by a batched Newton solution
   of a finite-volume discretisation on a radial grid clustered at the surface.
 """
@@ -36,12 +38,14 @@ from scipy.special import i0e, i1e
 from kinfit.errors import ConvergenceWarning, ModelError, SolverError, StudyError
 from kinfit.transport import _pellet_phase as _phase
 from kinfit.transport import _pellet_table as _table
+from kinfit.transport._lh_table import eta_langmuir_hinshelwood
 
 __all__ = [
     "GEOMETRIES",
     "shape_index",
     "eta_first_order",
     "eta_power_law",
+    "eta_langmuir_hinshelwood",
     "generalized_modulus_power",
     "generalized_modulus",
     "pellet_eta",

@@ -77,6 +77,14 @@ class PelletRate:
         order = rate_law.power_law_order(params)
         self.order = None if order is None else _fewest_orders(np.asarray(order, dtype=float))
         self.C_eq = np.asarray(rate_law.equilibrium_concentration(T, params, C0=C0), dtype=float)
+        # Langmuir-Hinshelwood: (K, m, k K) for the tabulated effectiveness factor
+        self.lh: tuple[Array, int, Array] | None = None
+        if self.order is None and De is not None:
+            form = rate_law.langmuir_hinshelwood_form(T, params)
+            if form is not None:
+                K, m = form
+                kK = np.asarray(rate_law.drate_dC(0.0, T, params, C0=C0), dtype=float)
+                self.lh = (np.asarray(K, dtype=float), int(m), kK)
 
     def _rate(self, C: Array) -> Array:
         return self.law.rate(C, self.T, self.p, C0=self.C0)
@@ -105,7 +113,62 @@ class PelletRate:
             with np.errstate(divide="ignore", invalid="ignore"):
                 dg = np.where(Cs > 0, g * (n + 0.5 * (n - 1.0) * slope) / Cs, 0.0)
             return g, dg, eta, phi, r
+        if self.lh is not None:
+            return self._langmuir_hinshelwood(Cs, r, derivative)
         return self._general(Cs, r, derivative)
+
+    def _langmuir_hinshelwood(self, Cs: Array, r: Array, derivative: bool):
+        """Tabulated eta for k K C/(1 + K C)^m where K Cs lies in the table's domain, the
+        numerical pellet solver (:meth:`_general`) at the other points."""
+        from kinfit.transport import _lh_table
+
+        assert self.lh is not None and self.De is not None
+        K, m, kK = self.lh
+        shape = np.broadcast_shapes(np.shape(Cs), np.shape(r), np.shape(K), np.shape(kK),
+                                    np.shape(self.De), np.shape(self.L))
+        Cs_b = np.broadcast_to(np.asarray(Cs, dtype=float), shape)
+        beta = K * Cs_b
+        with np.errstate(over="ignore", invalid="ignore"):
+            phi1 = self.L * np.sqrt(self.rho_p * kK / self.De)
+            f, dlnf = _lh_table.modulus_factor(np.maximum(beta, 0.0), m)
+            phi = np.broadcast_to(phi1 * f, shape)
+        inside = _lh_table.in_domain(beta, m, self.geometry) & ~np.isnan(phi)
+        eta = np.empty(shape)
+        phi_out = np.array(phi, dtype=float)
+        slope = np.zeros(shape)
+        if inside.any():
+            e, s_phi, s_beta = _lh_table.eta_langmuir_hinshelwood(
+                phi[inside], beta[inside], m, self.geometry, return_slope=True)
+            eta[inside] = e
+            # d ln eta/d ln Cs: Phi = phi_1 f(beta) with phi_1 independent of Cs, beta = K Cs
+            slope[inside] = s_phi * np.broadcast_to(dlnf, shape)[inside] + s_beta
+        r_b = np.broadcast_to(r, shape)
+        g = eta * r_b
+        dg = None
+        if derivative:
+            dr = np.broadcast_to(self.law.drate_dC(Cs, self.T, self.p, C0=self.C0), shape)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                dg = eta * dr + np.where(Cs_b > 0, g * slope / Cs_b, 0.0)
+        if not inside.all():
+            out = ~inside
+            sub = self._subset(out, shape)
+            g_o, dg_o, eta_o, phi_o, _ = sub._general(Cs_b[out], r_b[out], derivative)
+            g[out], eta[out], phi_out[out] = g_o, eta_o, phi_o
+            if dg is not None:
+                dg = np.array(dg)
+                dg[out] = dg_o
+        return g, dg, eta, phi_out, r_b
+
+    def _subset(self, mask: NDArray[np.bool_], shape: tuple[int, ...]) -> PelletRate:
+        """A PelletRate on the points ``mask`` of ``shape`` (flat arrays), numerical path."""
+        def take(a):
+            return None if a is None else np.broadcast_to(np.asarray(a, dtype=float),
+                                                          shape)[mask]
+
+        sub = PelletRate(self.law, {k: take(v) for k, v in self.p.items()}, take(self.T),
+                         take(self.C0), take(self.De), take(self.L), self.rho_p, self.geometry)
+        sub.lh = None
+        return sub
 
     def _general(self, Cs: Array, r: Array, derivative: bool):
         from kinfit.transport import pellet
