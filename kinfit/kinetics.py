@@ -305,6 +305,13 @@ class RateLaw(DeclaredParameters, ABC):
         use the tabulated Langmuir-Hinshelwood effectiveness factor)."""
         return None
 
+    def linear_slope(self, T: ArrayLike, p: Params, *, C0: ArrayLike | None = None
+                     ) -> FloatArray | None:
+        """dr/dC [m^3/(kg s)] when the rate is linear in C, r = slope (C - C_eq), for every
+        concentration (so the pellet has the first-order closed form in C - C_eq); else None.
+        Power laws are handled by their order instead."""
+        return None
+
     def __repr__(self) -> str:
         opts = ", ".join(f"{k}={v!r}" for k, v in self.options.items())
         return f"{type(self).__name__}({opts})"
@@ -533,6 +540,10 @@ class ReversibleFirstOrder(RateLaw):
         C0 = self._C0(C0)
         _, K = _k_and_K(self, T, p, self.reference_temperature)
         return C0 / (1.0 + K)
+
+    def linear_slope(self, T, p, *, C0=None):
+        k, K = _k_and_K(self, T, p, self.reference_temperature)
+        return np.asarray(k * (1.0 + 1.0 / K) / self.reference_concentration, dtype=float)
 
 
 class ExpressionRate(RateLaw):

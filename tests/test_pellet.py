@@ -421,6 +421,35 @@ def test_pellet_eta_reversible_and_backward():
     assert rel(phi, LEN * np.sqrt(k / DE)) < 1e-6
 
 
+def test_reversible_rate_law_takes_the_closed_form_on_the_surface_path():
+    # the first-order reversible law r = k [C - (C0 - C)/K]/C_ref is linear in C - C_eq, so
+    # the surface path uses eta_first_order at L sqrt(rho k (1 + 1/K)/(C_ref De)) (Aris 1975,
+    # common practice); it must agree with the numerical pellet solver (pellet_eta, checked
+    # above against the closed form and solve_bvp) at, above and below equilibrium
+    from kinfit.kinetics import make_rate_law
+    from kinfit.transport.surface import PelletRate
+
+    law = make_rate_law("reversible", reference_temperature=330.0,
+                        reference_concentration=1000.0)
+    p = {"k_ref": np.array(0.8), "activation_energy": np.array(5e4),
+         "equilibrium_constant": np.array(3.0), "reaction_enthalpy": np.array(-2e4)}
+    T = np.array([[320.0, 330.0, 345.0, 345.0, 330.0]])
+    C0 = np.full((1, 5), 800.0)
+    L = np.array([[2e-6, 2e-5, 5e-5, 1e-4, 3e-5]])
+    pr = PelletRate(law, p, T, C0, 1e-10, L, 1400.0, "sphere")
+    assert pr.slope is not None
+    Ceq = np.asarray(law.equilibrium_concentration(T, p, C0=C0))
+    Cs = np.array([[700.0, 400.0, 300.0, 100.0, 20.0]])
+    g, dg, eta, phi, r = pr(Cs)
+    g_num, dg_num, eta_num, phi_num, _ = pr._general(Cs, r, True)
+    assert rel(eta, eta_num) < 2e-5 and rel(phi, phi_num) < 1e-6
+    assert rel(g, g_num) < 2e-5
+    assert np.any(Cs < Ceq) and np.all(np.sign(g) == np.sign(Cs - Ceq))  # runs backwards
+    h = 1e-3
+    fd = (pr(Cs + h, derivative=False)[0] - pr(Cs - h, derivative=False)[0]) / (2 * h)
+    assert rel(dg, fd) < 1e-8 and rel(dg, dg_num) < 1e-4
+
+
 def test_pellet_eta_properties():
     # common practice: eta <= 1 for isothermal positive-order kinetics, decreasing with the
     # modulus; the modulus is proportional to the particle size

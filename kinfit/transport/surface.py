@@ -77,9 +77,14 @@ class PelletRate:
         order = rate_law.power_law_order(params)
         self.order = None if order is None else _fewest_orders(np.asarray(order, dtype=float))
         self.C_eq = np.asarray(rate_law.equilibrium_concentration(T, params, C0=C0), dtype=float)
+        # a rate linear in C (first-order reversible): the first-order closed form in C - C_eq
+        self.slope: Array | None = None
+        if self.order is None and De is not None:
+            slope = rate_law.linear_slope(T, params, C0=C0)
+            self.slope = None if slope is None else np.asarray(slope, dtype=float)
         # Langmuir-Hinshelwood: (K, m, k K) for the tabulated effectiveness factor
         self.lh: tuple[Array, int, Array] | None = None
-        if self.order is None and De is not None:
+        if self.order is None and self.slope is None and De is not None:
             form = rate_law.langmuir_hinshelwood_form(T, params)
             if form is not None:
                 K, m = form
@@ -113,6 +118,14 @@ class PelletRate:
             with np.errstate(divide="ignore", invalid="ignore"):
                 dg = np.where(Cs > 0, g * (n + 0.5 * (n - 1.0) * slope) / Cs, 0.0)
             return g, dg, eta, phi, r
+        if self.slope is not None:
+            # r = a (C - C_eq) is first order in C - C_eq: eta is the closed form at
+            # phi = L sqrt(rho_p a / De), the same at every Cs (Aris 1975, common practice)
+            phi_lin = np.broadcast_to(self.L * np.sqrt(self.rho_p * self.slope / self.De),
+                                      np.shape(r)).astype(float)
+            eta_lin = pellet.eta_first_order(phi_lin, self.geometry)
+            dg_lin = eta_lin * np.broadcast_to(self.slope, np.shape(r)) if derivative else None
+            return eta_lin * r, dg_lin, eta_lin, phi_lin, r
         if self.lh is not None:
             return self._langmuir_hinshelwood(Cs, r, derivative)
         return self._general(Cs, r, derivative)
