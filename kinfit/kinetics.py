@@ -337,7 +337,26 @@ def _k_and_K(law: RateLaw, T: ArrayLike, p: Params, T_ref: float) -> tuple[Float
 # ----------------------------------------------------------------------------------------------
 
 
-class PowerLaw(RateLaw):
+class _AtReferenceConditions(RateLaw):
+    """A law whose rate constant is given at a reference temperature and concentration."""
+
+    _option_names = ("reference_temperature", "reference_concentration")
+
+    def __init__(
+        self,
+        *,
+        reference_temperature: float,
+        reference_concentration: float = DEFAULT_REFERENCE_CONCENTRATION,
+    ) -> None:
+        self.reference_temperature = _option_positive(
+            self.name, "reference_temperature", reference_temperature, "K"
+        )
+        self.reference_concentration = _option_positive(
+            self.name, "reference_concentration", reference_concentration, "mol/m^3"
+        )
+
+
+class PowerLaw(_AtReferenceConditions):
     r"""Power law :math:`r = k(T)\,(C/C_\mathrm{ref})^n`, with k(T) by :func:`arrhenius`.
 
     k is the rate at C_ref [mol/(kg s)], so its unit does not depend on the fitted order.
@@ -366,20 +385,6 @@ class PowerLaw(RateLaw):
     name = "power"
     _units = {**_ARRHENIUS_UNITS, "order": "-"}
     _limits = {**_ARRHENIUS_LIMITS, "order": Interval(0.0, 3.0)}
-    _option_names = ("reference_temperature", "reference_concentration")
-
-    def __init__(
-        self,
-        *,
-        reference_temperature: float,
-        reference_concentration: float = DEFAULT_REFERENCE_CONCENTRATION,
-    ) -> None:
-        self.reference_temperature = _option_positive(
-            self.name, "reference_temperature", reference_temperature, "K"
-        )
-        self.reference_concentration = _option_positive(
-            self.name, "reference_concentration", reference_concentration, "mol/m^3"
-        )
 
     def _k_x_n(self, C, T, p):
         k_ref, Ea, n = _take(self, p, self.parameter_names)
@@ -466,7 +471,7 @@ class LangmuirHinshelwood(RateLaw):
         return np.asarray(K, dtype=float), self.m
 
 
-class ReversibleFirstOrder(RateLaw):
+class ReversibleFirstOrder(_AtReferenceConditions):
     r"""First-order reversible A <-> B: :math:`r = k(T)\,[C - (C_0 - C)/K_{eq}(T)]/C_\mathrm{ref}`.
 
     C0 is the run's initial total concentration (B starts at 0, so C_B = C0 - C). k(T) by
@@ -500,20 +505,6 @@ class ReversibleFirstOrder(RateLaw):
     reversible = True
     _units = {**_ARRHENIUS_UNITS, "equilibrium_constant": "-", "reaction_enthalpy": "J/mol"}
     _limits = {**_ARRHENIUS_LIMITS, "equilibrium_constant": Interval(0.0, lower_closed=False)}
-    _option_names = ("reference_temperature", "reference_concentration")
-
-    def __init__(
-        self,
-        *,
-        reference_temperature: float,
-        reference_concentration: float = DEFAULT_REFERENCE_CONCENTRATION,
-    ) -> None:
-        self.reference_temperature = _option_positive(
-            self.name, "reference_temperature", reference_temperature, "K"
-        )
-        self.reference_concentration = _option_positive(
-            self.name, "reference_concentration", reference_concentration, "mol/m^3"
-        )
 
     def _C0(self, C0):
         if C0 is None:
