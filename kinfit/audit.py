@@ -1,7 +1,8 @@
 """Audit of a claimed rate law: can it be intrinsic at the test conditions it came from, do the
 data (when given) reproduce it, and does it carry the signatures of film or pore control.
 
-A claim file (TOML) holds one or more claims (power-law k, Ea, order, perhaps De), the test
+A claim file (TOML) holds one or more claims (power-law k, Ea, order, or Langmuir-Hinshelwood
+k, Ea, K, dH_ads, m; perhaps De), the test
 conditions or a runs/observations table pair in the study vocabulary, the catalyst, and what
 is known of the film coefficient and the effective diffusivity (format: :func:`load_claims`).
 
@@ -10,8 +11,11 @@ Per claim:
 1. Criteria at the test conditions with the claim's own parameters, two ways: *observable*
    (the claimed rate taken as the observed rate: Carberry, Weisz-Prater, Mears) and *as
    intrinsic* (the claim pushed through kinfit's film and pellet model: eta, Thiele modulus,
-   regime). Conventions and thresholds: :mod:`kinfit.criteria`.
-2. With data: a refit of the claim's power law ignoring transport ("as observed") and one with
+   regime). Conventions and thresholds: :mod:`kinfit.criteria`. For a Langmuir-Hinshelwood
+   claim the order in the Mears number and the Carberry limit is the local apparent order of
+   the claimed law at the bulk concentration, n_app = d ln r/d ln C = 1 - m K C/(1 + K C)
+   (taken as |n_app|; it is <= 0 for m = 2 at K C >= 1).
+2. With data: a refit of the claim's rate law ignoring transport ("as observed") and one with
    the stated film coefficient and effective diffusivity ("transport-aware"), each with the
    likelihood-ratio test of the claimed values, ``LR = n ln(S(theta_c)/S_hat) ~ chi2_p``, and the
    joint 95 % region ``S(theta) <= S_hat [1 + p/(n-p) F(p, n-p; 0.95)]`` (Beale 1960; Bates &
@@ -19,7 +23,10 @@ Per claim:
 3. Signatures: strong pore diffusion halves the activation energy and takes the order to
    (n + 1)/2 (Weisz & Prater 1954; Satterfield 1970); film control gives an apparent
    activation energy near zero (below about 15 kJ/mol, common practice) and first apparent
-   order.
+   order. For a Langmuir-Hinshelwood claim the film signature uses the claimed law's apparent
+   activation energy at the test conditions, E_app = Ea + n_app dH_ads (from
+   ln r = ln k + ln K + ln C - m ln(1 + K C), derived); the pore signatures are power-law
+   results and are reported as not tested.
 
 Verdicts: "consistent with intrinsic kinetics", "transport-contaminated" (with the evidence),
 "not reproduced by the data" (the data reject the claimed values without a transport
@@ -82,6 +89,14 @@ SOURCES = {
                       "(Weisz & Prater 1954; Satterfield 1970)",
     "film_signature": "film control: apparent activation energy near zero (below about "
                       "15 kJ/mol) and first apparent order (common practice)",
+}
+#: sources added to audit.json when a claim is Langmuir-Hinshelwood
+LH_SOURCES = {
+    "lh_apparent_order": "local apparent order of r = k K C/(1 + K C)^m: d ln r/d ln C = "
+                         "1 - m K C/(1 + K C) (derived from the rate law)",
+    "lh_apparent_activation_energy": "E_app = -R d ln r/d(1/T) = Ea + n_app dH_ads with "
+                                     "Arrhenius k and van 't Hoff K (derived from the rate "
+                                     "law)",
 }
 
 
@@ -155,21 +170,26 @@ class AuditResult:
         """Plain-Python content of audit.json."""
         from kinfit.outputs import to_plain
 
+        lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
         return to_plain({"kinfit_audit": 1, "claim_file": str(self.path), "title": self.title,
                          "claims": [c.to_dict() for c in self.claims],
-                         "thresholds": self.thresholds, "sources": SOURCES,
+                         "thresholds": self.thresholds,
+                         "sources": {**SOURCES, **LH_SOURCES} if lh else SOURCES,
                          "manifest": self.manifest})
 
     def markdown(self) -> str:
         """The short audit report (audit.md)."""
-        return _markdown(self)
+        from kinfit.audit_report import markdown
+
+        lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
+        return markdown(self, {**SOURCES, **LH_SOURCES} if lh else SOURCES)
 
     def save(self, folder: str | Path) -> Path:
         """Write audit.json and audit.md atomically into ``folder``."""
         from kinfit.outputs import write_json_atomic, write_text_atomic
 
         folder = Path(folder)
-        write_text_atomic(folder / "audit.md", _markdown(self))
+        write_text_atomic(folder / "audit.md", self.markdown())
         return write_json_atomic(folder / "audit.json", self.to_dict())
 
 
@@ -181,6 +201,19 @@ def _fixed(table):
 
 def _spec(study: Study, table, *, check: bool = True) -> ModelSpec:
     return ModelSpec.from_study(study, parameters=table, check=check)
+
+
+def lh_local(claim: Claim, T: Array, C: Array) -> tuple[Array, Array]:
+    """Local apparent order n_app = 1 - m K C/(1 + K C) and apparent activation energy
+    E_app = Ea + n_app dH_ads [J/mol] of a Langmuir-Hinshelwood claim at (T, C) (derived from
+    r = k K C/(1 + K C)^m with Arrhenius k and van 't Hoff K)."""
+    from kinfit.kinetics import van_t_hoff
+
+    K = np.asarray(van_t_hoff(claim.values()["adsorption_constant"], claim.adsorption_enthalpy,
+                              np.asarray(T, dtype=float), claim.reference_temperature))
+    KC = K * np.maximum(np.asarray(C, dtype=float), 0.0)
+    n_app = 1.0 - claim.m * KC / (1.0 + KC)
+    return n_app, claim.activation_energy + n_app * claim.adsorption_enthalpy
 
 
 def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
@@ -205,11 +238,13 @@ def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
         ca = np.where(np.isfinite(kc), r / (kc * model.a_m * model.C0), 0.0)
     cs = model.C0 * np.clip(1.0 - ca, 1e-12, 1.0)
     De = None if built.De is None else np.full(r.shape, built.De)
+    n_app = lh_local(claim, model.T, model.C0)[0] if claim.is_lh else None
     obs = compute_criteria(
         observed_rate=r, bulk_concentration=model.C0, surface_concentration=cs,
         intrinsic_rate=r, effectiveness=np.ones_like(r), thiele_modulus=np.full_like(r, np.nan),
         kc=kc, particle_diameter=model.dp, particle_density=spec.particle_density,
-        effective_diffusivity=De, geometry=spec.geometry, order=claim.order,
+        effective_diffusivity=De, geometry=spec.geometry,
+        order=claim.values()["order"] if n_app is None else np.abs(n_app),
         thresholds=thresholds)
     c = state.criteria
     limits = obs.thresholds
@@ -224,6 +259,9 @@ def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
                 "weisz_prater": float(obs.weisz_prater[i]) if built.De else None,
                 "mears": float(obs.mears[i]) if built.has_kc else None,
                 "kc": float(kc[i]) if built.has_kc else None,
+                **({} if n_app is None else {
+                    "apparent_order": float(n_app[i]),
+                    "carberry_limit": thresholds.carberry / max(abs(float(n_app[i])), 1e-12)}),
             },
             "as_intrinsic": {
                 "effectiveness_factor": float(c.effectiveness_factor[i]),
@@ -243,7 +281,8 @@ def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
     """Refit the kinetics of one model and test the claimed values against the optimum."""
     from kinfit.fitting import FitOptions, fit_model
 
-    names = [n for n in ("k_ref", "activation_energy", "order") if table[n].vary]
+    kinetic = list(claim.values())
+    names = [n for n in kinetic if table[n].vary]
     spec = _spec(study, table)
     model = Model(spec, study)
     with warnings.catch_warnings(record=True) as caught:
@@ -259,7 +298,7 @@ def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
     bound = s_hat * (1.0 + p / (n - p) * stats.f.ppf(LEVEL, p, n - p)) if n > p else math.inf
     p_value = float(stats.chi2.sf(lr, p))
     estimates = {}
-    for c in ("k_ref", "activation_energy", "order"):
+    for c in kinetic:
         e = res.parameters[c]
         estimates[c] = {"estimate": float(e["estimate"]), "unit": e["unit"],
                         "stderr": e.get("stderr"), "ci95": e.get("ci95"), "vary": e["vary"]}
@@ -277,30 +316,40 @@ def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
 
 def _kinetic_table(built: _Built, cf: ClaimFile, claim: Claim, *, transport: bool,
                    notes: list[str]):
-    table = _transport_table(built, cf, claim) if transport else parameter_table_from_toml({
-        "k_ref": {"value": f"{claim.k_ref!r} mol/(kg*s)"},
-        "activation_energy": {"value": f"{claim.activation_energy!r} J/mol"},
-        "order": {"value": claim.order}}, cf.path.name)
+    table = (_transport_table(built, cf, claim) if transport else
+             parameter_table_from_toml(claim.parameter_section(), cf.path.name))
     study = built.study
     from kinfit.parameters import ParameterTable
 
     fix = set()
     if len({round(r.temperature, 6) for r in study.runs}) < 2:
-        fix.add("activation_energy")
-        notes.append("the data hold one temperature only: the activation energy is held at "
-                     "the claimed value in the refits (not tested)")
+        if claim.is_lh:
+            fix |= {"activation_energy", "adsorption_enthalpy"}
+            notes.append("the data hold one temperature only: the activation energy and the "
+                         "adsorption enthalpy are held at the claimed values in the refits (not "
+                         "tested)")
+        else:
+            fix.add("activation_energy")
+            notes.append("the data hold one temperature only: the activation energy is held "
+                         "at the claimed value in the refits (not tested)")
     if study.kind == "rate" and len({round(r.initial_concentration, 9)
                                      for r in study.runs}) < 2:
-        fix.add("order")
-        notes.append("the rate data hold one initial concentration only: the order is held at "
-                     "the claimed value in the refits (not tested)")
+        if claim.is_lh:
+            fix |= {"adsorption_constant", "adsorption_enthalpy"}
+            notes.append("the rate data hold one initial concentration only: the adsorption "
+                         "constant and enthalpy are held at the claimed values in the refits "
+                         "(not tested)")
+        else:
+            fix.add("order")
+            notes.append("the rate data hold one initial concentration only: the order is "
+                         "held at the claimed value in the refits (not tested)")
     return ParameterTable([replace(table[n], vary=False) if n in fix else table[n]
                            for n in table])
 
 
 def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: bool
                 ) -> dict[str, Any]:
-    Ea, n = claim.activation_energy, claim.order
+    Ea, n = claim.activation_energy, claim.values()["order"]
     out: dict[str, Any] = {}
     film = Ea < FILM_EA_LIMIT
     first = abs(n - 1.0) <= ORDER_TOLERANCE
@@ -371,6 +420,35 @@ def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: 
     return out
 
 
+def _lh_signatures(claim: Claim, crit: dict[str, Any]) -> dict[str, Any]:
+    """Signatures of a Langmuir-Hinshelwood claim: film control from the claimed law's apparent
+    activation energy and order at the test conditions; the pore signatures not tested."""
+    runs = list(crit["runs"].values())
+    T = np.array([r["temperature"] for r in runs])
+    C = np.array([r["initial_concentration"] for r in runs])
+    n_app, E_app = lh_local(claim, T, C)
+    film = bool(np.all(np.abs(E_app) < FILM_EA_LIMIT))
+    first = bool(np.all(np.abs(n_app - 1.0) <= ORDER_TOLERANCE))
+    span = (f"{E_app.min() / 1e3:.3g} to {E_app.max() / 1e3:.3g} kJ/mol" if E_app.size > 1
+            and not np.isclose(E_app.min(), E_app.max()) else f"{E_app.mean() / 1e3:.3g} kJ/mol")
+    head = (f"apparent activation energy of the claimed law at the test conditions, "
+            f"Ea + n_app dH_ads = {span}")
+    why = ("the halving of Ea and the apparent order (n + 1)/2 under strong pore diffusion are "
+           "results for n-th order (power-law) kinetics (Weisz & Prater 1954; Satterfield "
+           "1970); no signature of that kind is tested for a Langmuir-Hinshelwood law here, "
+           "where the criteria and the transport-aware refit carry the pore evidence")
+    return {
+        "film": {"found": film, "apparent_activation_energy": [float(e) for e in E_app],
+                 "apparent_order": [float(n) for n in n_app],
+                 "text": (f"{head}, is near zero (|E_app| below {FILM_EA_LIMIT / 1e3:g} kJ/mol)"
+                          + (" with a first apparent order" if first else "")
+                          + ": the signature of film control (common practice)") if film else
+                         f"{head}, is not near zero: no film signature"},
+        "pore_activation_energy": {"found": None, "text": f"not tested: {why}"},
+        "pore_order": {"found": None, "text": f"not tested: {why}"},
+    }
+
+
 def _criteria_evidence(crit: dict[str, Any], thresholds: Thresholds) -> tuple[list[str], bool]:
     """Sentences on criteria that fail at the test conditions, and whether any could not be
     computed."""
@@ -383,13 +461,25 @@ def _criteria_evidence(crit: dict[str, Any], thresholds: Thresholds) -> tuple[li
         return max(vals, key=lambda t: t[1]) if vals else None
 
     ca = worst("carberry", "observable")
+    per_run = any("carberry_limit" in r["observable"] for r in runs.values())
+    if ca is not None and per_run:
+        # Langmuir-Hinshelwood: each run against its own limit 0.05/|n_app|
+        rid = max(runs, key=lambda k: runs[k]["observable"]["carberry"]
+                  / runs[k]["observable"]["carberry_limit"])
+        o = runs[rid]["observable"]
+        if ca[1] < 1.0 and o["carberry"] >= o["carberry_limit"]:
+            out.append(f"Carberry number {o['carberry']:.3g} at run {rid} against its limit "
+                       f"{o['carberry_limit']:.3g} = 0.05/|n_app| (apparent order "
+                       f"{o['apparent_order']:.3g} of the claimed law): the film takes more "
+                       "than 5 % of the rate (Carberry 1976)")
+            ca = (ca[0], -math.inf)  # reported; skip the scalar-limit test below
     if ca is None:
         uncomputed = True
     elif ca[1] >= 1.0:
         out.append(f"the claimed rate at run {ca[0]} exceeds the largest rate the film can "
                    f"supply, kc a_m Cb (Carberry number {ca[1]:.3g} >= 1): the claim cannot "
                    "describe these test conditions with the stated kc")
-    elif ca[1] >= lim["carberry"]:
+    elif ca[1] >= lim["carberry"] and not per_run:
         out.append(f"Carberry number up to {ca[1]:.3g} (run {ca[0]}) against the limit "
                    f"{lim['carberry']:.3g} = 0.05/|n|: the film takes more than 5 % of the "
                    "rate (Carberry 1976)")
@@ -433,17 +523,19 @@ def _audit_one(cf: ClaimFile, claim: Claim, thresholds: Thresholds) -> ClaimAudi
                        "whether the data reproduce the claim cannot be tested")
     else:
         bare = _kinetic_table(built, cf, claim, transport=False, notes=notes)
-        reproduction["as_observed"] = _refit(built.bare, bare, claim, "power law, no transport")
+        law = (f"Langmuir-Hinshelwood (m = {claim.m})" if claim.is_lh else "power law")
+        reproduction["as_observed"] = _refit(built.bare, bare, claim, f"{law}, no transport")
         if built.has_kc or built.De:
             table = _kinetic_table(built, cf, claim, transport=True, notes=[])
             transport_fit = _refit(built.transport, table, claim,
-                                   "power law with the stated film and pellet")
+                                   f"{law} with the stated film and pellet")
             reproduction["transport_aware"] = transport_fit
         for key, r in reproduction.items():
             if not r["converged"]:
                 notes.append(f"the {key.replace('_', '-')} refit did not converge "
                              f"({r['message']}); its test is indicative only")
-    signatures = _signatures(claim, transport_fit, bool(built.De))
+    signatures = (_lh_signatures(claim, crit) if claim.is_lh else
+                  _signatures(claim, transport_fit, bool(built.De)))
     evidence: list[str] = []
     if claim.basis == "as measured":
         evidence += crit_evidence
@@ -478,17 +570,41 @@ def _audit_one(cf: ClaimFile, claim: Claim, thresholds: Thresholds) -> ClaimAudi
                        "correction the claim rests on")
     else:
         verdict = "consistent with intrinsic kinetics"
-    values = {"k_ref": {"value": claim.k_ref, "unit": "mol/(kg*s)"},
-              "reference_temperature": {"value": claim.reference_temperature, "unit": "K"},
-              "reference_concentration": {"value": claim.reference_concentration,
-                                          "unit": "mol/m^3"},
-              "activation_energy": {"value": claim.activation_energy, "unit": "J/mol"},
-              "order": {"value": claim.order, "unit": "1"},
-              "effective_diffusivity": {"value": built.De, "unit": "m^2/s",
-                                        "from": "claim" if claim.effective_diffusivity
-                                        else ("[pellet]" if built.De else None)}}
+    if claim.is_lh:
+        orders = [r["observable"]["apparent_order"] for r in crit["runs"].values()]
+        notes.append("Langmuir-Hinshelwood claim: the Mears number and the Carberry limit use "
+                     "the local apparent order of the claimed law at each test condition, "
+                     f"n_app = 1 - m K C/(1 + K C) (here {min(orders):.3g} to "
+                     f"{max(orders):.3g}), as |n_app|")
+        if min(orders) <= 0:
+            notes.append("the apparent order is <= 0 at some test conditions (m = 2 past the "
+                         "rate maximum at K C = 1): there a lower surface concentration raises "
+                         "the rate, and the Mears and Carberry tests with |n_app| are first-"
+                         "order estimates only; the as-intrinsic regime and eta carry the test")
+    values = _values(claim, built)
     return ClaimAudit(claim.name, claim.basis, values, verdict, tuple(evidence),
                       tuple(missing), tuple(notes), crit, reproduction, signatures)
+
+
+def _values(claim: Claim, built: _Built) -> dict[str, Any]:
+    De = {"value": built.De, "unit": "m^2/s",
+          "from": "claim" if claim.effective_diffusivity else ("[pellet]" if built.De else None)}
+    if claim.is_lh:
+        return {"rate_law": claim.rate_law,
+                "k_ref": {"value": claim.k_ref, "unit": "mol/(kg*s)"},
+                "reference_temperature": {"value": claim.reference_temperature, "unit": "K"},
+                "activation_energy": {"value": claim.activation_energy, "unit": "J/mol"},
+                "adsorption_constant": {"value": claim.adsorption_constant, "unit": "m^3/mol"},
+                "adsorption_enthalpy": {"value": claim.adsorption_enthalpy, "unit": "J/mol"},
+                "m": {"value": claim.m, "unit": "1"},
+                "effective_diffusivity": De}
+    return {"k_ref": {"value": claim.k_ref, "unit": "mol/(kg*s)"},
+            "reference_temperature": {"value": claim.reference_temperature, "unit": "K"},
+            "reference_concentration": {"value": claim.reference_concentration,
+                                        "unit": "mol/m^3"},
+            "activation_energy": {"value": claim.activation_energy, "unit": "J/mol"},
+            "order": {"value": claim.order, "unit": "1"},
+            "effective_diffusivity": De}
 
 
 def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None = None
@@ -527,79 +643,6 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
                         "pore_activation_energy_ratio": list(PORE_EA_RATIO),
                         "order_tolerance": ORDER_TOLERANCE, "level": LEVEL},
                        manifest(files=files, argv=None))
-
-
-# ------------------------------------------------------------------------------ report
-def _fmt(v: float | None, spec: str = ".3g") -> str:
-    return "n/a" if v is None else format(v, spec)
-
-
-def _interval(entry: Mapping[str, Any], scale: float = 1.0) -> str:
-    est = entry["estimate"] / scale
-    ci = entry["ci95"]
-    if not entry["vary"]:
-        return f"{est:.4g} (held)"
-    if not ci or ci[0] is None or ci[1] is None:
-        return f"{est:.4g}"
-    return f"{est:.4g} ({ci[0] / scale:.4g} to {ci[1] / scale:.4g})"
-
-
-def _markdown(result: AuditResult) -> str:
-    from kinfit.conditions import display
-
-    lines = [f"# Audit of claimed kinetics: {result.title}", "",
-             f"Claim file: `{result.path.name}`. Criteria and thresholds as in kinfit's "
-             "criteria module; sources at the end.", "",
-             "| claim | basis | k_ref [mol/(kg s)] at T_ref | Ea [kJ/mol] | order | verdict |",
-             "|---|---|---|---|---|---|"]
-    for c in result.claims:
-        v = c.values
-        lines.append(f"| {c.name} | {c.basis} | {v['k_ref']['value']:.4g} at "
-                     f"{v['reference_temperature']['value'] - 273.15:.4g} degC | "
-                     f"{v['activation_energy']['value'] / 1e3:.4g} | {v['order']['value']:.3g} "
-                     f"| **{c.verdict}** |")
-    for c in result.claims:
-        lines += ["", f"## {c.name}", "", f"**Verdict: {c.verdict}.**", ""]
-        if c.evidence:
-            lines += ["Evidence:", ""] + [f"- {e}" for e in c.evidence] + [""]
-        if c.missing:
-            lines += ["Not tested (missing):", ""] + [f"- {m}" for m in c.missing] + [""]
-        lines += ["### Criteria at the test conditions", "",
-                  "Carberry, Weisz-Prater and Mears from the observed rate the claim implies "
-                  "(the claimed rate itself when claimed as measured). As intrinsic: the claim "
-                  "pushed through the stated film and pellet.", "",
-                  "| run | conditions | Carberry | Weisz-Prater | Mears | eta as intrinsic | "
-                  "regime as intrinsic |", "|---|---|---|---|---|---|---|"]
-        lim = c.conditions["limits"]
-        for rid, r in c.conditions["runs"].items():
-            cond = ", ".join(display(f, r[f]) for f in ("temperature", "stirrer_speed",
-                                                       "particle_diameter",
-                                                       "initial_concentration"))
-            o, s = r["observable"], r["as_intrinsic"]
-            lines.append(f"| {rid} | {cond} | {_fmt(o['carberry'])} | "
-                         f"{_fmt(o['weisz_prater'])} | {_fmt(o['mears'])} | "
-                         f"{s['effectiveness_factor']:.3g} | {s['regime']} |")
-        lines += ["", f"Limits: Carberry {lim['carberry']:.3g} (0.05/|n|), Weisz-Prater "
-                  f"{lim['weisz_prater']:.3g} (Psi_L), Mears {lim['mears']:.3g}, eta >= "
-                  f"{lim['effectiveness_factor']:.3g}.", ""]
-        if c.reproduction:
-            lines += ["### Do the data reproduce the claim?", "",
-                      "| refit | k_ref | Ea [kJ/mol] (95 %) | order (95 %) | LR (p) | S claim / "
-                      "joint bound | claim |", "|---|---|---|---|---|---|---|"]
-            for r in c.reproduction.values():
-                e = r["estimates"]
-                lines.append(f"| {r['model']} | {e['k_ref']['estimate']:.4g} | "
-                             f"{_interval(e['activation_energy'], 1e3)} | "
-                             f"{_interval(e['order'])} | "
-                             f"{r['likelihood_ratio']:.3g} ({r['p_value']:.2g}) | "
-                             f"{r['sse_claim']:.4g} / {r['joint_region_bound']:.4g} | "
-                             f"{'rejected' if r['rejected'] else 'accepted'} |")
-            lines.append("")
-        lines += ["### Signatures", ""] + [f"- {s['text']}" for s in c.signatures.values()]
-        if c.notes:
-            lines += ["", "Notes:", ""] + [f"- {n}" for n in c.notes]
-    lines += ["", "## Sources", ""] + [f"- {k}: {v}" for k, v in SOURCES.items()]
-    return "\n".join(lines) + "\n"
 
 
 # ------------------------------------------------------------------------------ command line

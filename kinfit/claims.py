@@ -1,6 +1,7 @@
 """Claim files for ``kinfit audit``: a supplier's claimed power law (k or k_ref with its reference
-temperature, Ea, order, perhaps De), the test conditions or data it came from, the catalyst and
-what is known of the film and the pellet; read, validated and turned into kinfit studies.
+temperature, Ea, order, perhaps De) or Langmuir-Hinshelwood law (k_ref, Ea, K, dH_ads, m,
+perhaps De), the test conditions or data it came from, the catalyst and what is known of the
+film and the pellet; read, validated and turned into kinfit studies.
 """
 
 from __future__ import annotations
@@ -24,20 +25,25 @@ from kinfit.parameters import parameter_table_from_toml
 from kinfit.study import FACTORS, Study, load_study
 from kinfit.units import parse_quantity, ureg
 
-__all__ = ["Claim", "ClaimFile", "BASES", "load_claims"]
+__all__ = ["Claim", "ClaimFile", "BASES", "RATE_LAWS", "load_claims"]
 
 Array = NDArray[np.float64]
 BASES = ("as measured", "transport-corrected")
-_CLAIM_KEYS = {"name", "source", "basis", "rate_law", "k_ref", "rate_constant",
-               "pre_exponential_factor", "reference_temperature", "reference_concentration",
-               "activation_energy", "order", "effective_diffusivity", "note"}
+#: rate laws a claim may state (kinfit names)
+RATE_LAWS = ("power", "langmuir_hinshelwood")
+_COMMON_KEYS = {"name", "source", "basis", "rate_law", "k_ref", "pre_exponential_factor",
+                "reference_temperature", "activation_energy", "effective_diffusivity", "note"}
+_LAW_KEYS = {"power": _COMMON_KEYS | {"rate_constant", "reference_concentration", "order"},
+             "langmuir_hinshelwood": _COMMON_KEYS | {"adsorption_constant",
+                                                     "adsorption_enthalpy", "m"}}
+_CLAIM_KEYS = _LAW_KEYS["power"] | _LAW_KEYS["langmuir_hinshelwood"]
 _FILM_KC_KEYS = {"kc", "speed", "diameter", "agitation_exponent", "size_exponent"}
 
 
 # ------------------------------------------------------------------------------ the claim file
 @dataclass(frozen=True)
 class Claim:
-    """One claimed power law, SI units.
+    """One claimed rate law (power law or Langmuir-Hinshelwood), SI units.
 
     Attributes
     ----------
@@ -46,16 +52,25 @@ class Claim:
         Whether the values are the measured kinetics as such (the usual claim) or were
         extracted with film and pore corrections (with the file's kc and De).
     k_ref : float
-        Rate at ``reference_concentration`` and ``reference_temperature``, mol/(kg s).
+        Power law: rate at ``reference_concentration`` and ``reference_temperature``;
+        Langmuir-Hinshelwood: k(T_ref) of r = k K C/(1 + K C)^m; mol/(kg s).
     reference_temperature : float
         K.
     reference_concentration : float
-        mol/m^3.
+        mol/m^3 (power law; unused by a Langmuir-Hinshelwood claim).
     activation_energy : float
         J/mol.
-    order : float
+    order : float or None
+        Power-law order; None for a Langmuir-Hinshelwood claim.
     effective_diffusivity : float or None
         m^2/s, when the claim states one.
+    rate_law : {"power", "langmuir_hinshelwood"}
+    adsorption_constant : float or None
+        K(T_ref), m^3/mol (Langmuir-Hinshelwood only).
+    adsorption_enthalpy : float
+        J/mol, van 't Hoff enthalpy of K (Langmuir-Hinshelwood only).
+    m : int
+        Denominator power, 1 or 2 (Langmuir-Hinshelwood only).
     """
 
     name: str
@@ -64,15 +79,47 @@ class Claim:
     reference_temperature: float
     reference_concentration: float
     activation_energy: float
-    order: float
+    order: float | None
     effective_diffusivity: float | None = None
     source: str = ""
     note: str = ""
+    rate_law: str = "power"
+    adsorption_constant: float | None = None
+    adsorption_enthalpy: float = 0.0
+    m: int = 1
+
+    @property
+    def is_lh(self) -> bool:
+        """Whether the claim is a Langmuir-Hinshelwood law."""
+        return self.rate_law == "langmuir_hinshelwood"
 
     def values(self) -> dict[str, float]:
-        """The three kinetic parameters by their kinfit names."""
+        """The kinetic parameters by their kinfit names (three for a power law, four for a
+        Langmuir-Hinshelwood law)."""
+        if self.is_lh:
+            assert self.adsorption_constant is not None
+            return {"k_ref": self.k_ref, "activation_energy": self.activation_energy,
+                    "adsorption_constant": self.adsorption_constant,
+                    "adsorption_enthalpy": self.adsorption_enthalpy}
+        assert self.order is not None
         return {"k_ref": self.k_ref, "activation_energy": self.activation_energy,
                 "order": self.order}
+
+    def kinetics_section(self) -> dict[str, Any]:
+        """The ``[kinetics]`` section of the claim's study."""
+        if self.is_lh:
+            return {"rate_law": self.rate_law,
+                    "reference_temperature": f"{self.reference_temperature!r} K", "m": self.m}
+        return {"rate_law": "power",
+                "reference_temperature": f"{self.reference_temperature!r} K",
+                "reference_concentration": f"{self.reference_concentration!r} mol/m^3"}
+
+    def parameter_section(self) -> dict[str, dict[str, Any]]:
+        """``[parameters.NAME]`` blocks at the claimed values (study vocabulary)."""
+        units = {"k_ref": "mol/(kg*s)", "activation_energy": "J/mol",
+                 "adsorption_constant": "m^3/mol", "adsorption_enthalpy": "J/mol"}
+        return {k: {"value": f"{v!r} {units[k]}" if k in units else v}
+                for k, v in self.values().items()}
 
 
 @dataclass(frozen=True)
@@ -121,17 +168,24 @@ def _quantity(sec: Mapping[str, Any], key: str, kind: str, where: str) -> float:
 def _claim(sec: Mapping[str, Any], i: int, path: Path, conditions: Sequence[Mapping[str, float]]
            ) -> Claim:
     where = _where(path, f"claim {i + 1}" if "name" not in sec else f"claim '{sec['name']}'")
+    law = sec.get("rate_law", "power")
     unknown = sorted(set(sec) - _CLAIM_KEYS)
     if unknown:
         raise StudyError(f"{where}: unknown key(s) {unknown}; allowed keys are "
-                         f"{sorted(_CLAIM_KEYS)}")
-    law = sec.get("rate_law", "power")
-    if law != "power":
-        raise StudyError(f"{where}: rate_law = {law!r} is not supported by the audit; claims are "
-                         "power laws (rate_law = \"power\")")
+                         f"{sorted(_LAW_KEYS.get(law, _CLAIM_KEYS) if isinstance(law, str) else _CLAIM_KEYS)}")
+    if law not in RATE_LAWS:
+        raise StudyError(f"{where}: rate_law = {law!r} is not supported by the audit; write "
+                         "rate_law = \"power\" or rate_law = \"langmuir_hinshelwood\"")
+    foreign = sorted(set(sec) - _LAW_KEYS[law])
+    if foreign:
+        other = next(x for x in RATE_LAWS if x != law)
+        raise StudyError(f"{where}: key(s) {foreign} belong to rate_law = \"{other}\", not to "
+                         f"rate_law = \"{law}\"; remove them or change rate_law")
     basis = sec.get("basis", "as measured")
     if basis not in BASES:
         raise StudyError(f"{where}: basis = {basis!r} is not recognised; use one of {list(BASES)}")
+    if law == "langmuir_hinshelwood":
+        return _lh_claim(sec, i, path, where, basis)
     for key in ("activation_energy", "order"):
         if key not in sec:
             raise StudyError(f"{where}: '{key}' is missing; write for example "
@@ -169,12 +223,69 @@ def _claim(sec: Mapping[str, Any], i: int, path: Path, conditions: Sequence[Mapp
         k_ref = _quantity(sec, "k_ref", "rate_per_mass", where)
     if not k_ref > 0:
         raise StudyError(f"{where}: the claimed rate constant must be > 0")
+    De = _claimed_diffusivity(sec, where)
+    return Claim(str(sec.get("name", f"claim {i + 1}")), basis, float(k_ref), T_ref, C_ref, Ea,
+                 n, De, str(sec.get("source", "")), str(sec.get("note", "")))
+
+
+def _claimed_diffusivity(sec: Mapping[str, Any], where: str) -> float | None:
     De = (_quantity(sec, "effective_diffusivity", "diffusivity", where)
           if "effective_diffusivity" in sec else None)
     if De is not None and not De > 0:
         raise StudyError(f"{where}.effective_diffusivity must be > 0")
-    return Claim(str(sec.get("name", f"claim {i + 1}")), basis, float(k_ref), T_ref, C_ref, Ea,
-                 n, De, str(sec.get("source", "")), str(sec.get("note", "")))
+    return De
+
+
+def _lh_claim(sec: Mapping[str, Any], i: int, path: Path, where: str, basis: str) -> Claim:
+    """A Langmuir-Hinshelwood claim, r = k(T) K(T) C/(1 + K(T) C)^m.
+
+    k_ref (or pre_exponential_factor), reference_temperature, activation_energy,
+    adsorption_constant and adsorption_enthalpy are required: K and its temperature dependence
+    are part of what is claimed, so the audit does not supply a default enthalpy (write
+    "0 kJ/mol" for a K taken independent of temperature). m defaults to 1.
+    """
+    examples = {"reference_temperature": "reference_temperature = \"60 degC\" (the temperature "
+                                         "of k_ref and adsorption_constant)",
+                "activation_energy": "activation_energy = \"60 kJ/mol\"",
+                "adsorption_constant": "adsorption_constant = \"0.8 L/mol\" (K at the "
+                                       "reference temperature)",
+                "adsorption_enthalpy": "adsorption_enthalpy = \"-20 kJ/mol\" (write \"0 kJ/mol\" "
+                                       "if the claim takes K independent of temperature)"}
+    for key, text in examples.items():
+        if key not in sec:
+            raise StudyError(f"{where}: '{key}' is missing for rate_law = "
+                             f"\"langmuir_hinshelwood\"; write for example {text}")
+    given = [k for k in ("k_ref", "pre_exponential_factor") if k in sec]
+    if len(given) != 1:
+        raise StudyError(f"{where}: give exactly one of k_ref (k of r = k K C/(1 + K C)^m at the "
+                         "reference temperature, mol/(kg*s)) or pre_exponential_factor; found "
+                         f"{given or 'none'}")
+    T_ref = _quantity(sec, "reference_temperature", "temperature", where)
+    Ea = _quantity(sec, "activation_energy", "energy_per_mol", where)
+    if not 0.0 <= Ea <= 4e5:
+        raise StudyError(f"{where}.activation_energy = {Ea:g} J/mol lies outside [0, 400] kJ/mol")
+    if given[0] == "k_ref":
+        k_ref = _quantity(sec, "k_ref", "rate_per_mass", where)
+    else:
+        A = _quantity(sec, "pre_exponential_factor", "rate_per_mass", where)
+        k_ref = A * math.exp(-Ea / (8.314462618 * T_ref))
+    if not k_ref > 0:
+        raise StudyError(f"{where}: the claimed rate constant must be > 0")
+    K = _quantity(sec, "adsorption_constant", "per_concentration", where)
+    if not K > 0:
+        raise StudyError(f"{where}.adsorption_constant must be > 0, e.g. \"0.8 L/mol\"")
+    dH = _quantity(sec, "adsorption_enthalpy", "energy_per_mol", where)
+    if not -4e5 <= dH <= 4e5:
+        raise StudyError(f"{where}.adsorption_enthalpy = {dH:g} J/mol lies outside "
+                         "[-400, 400] kJ/mol")
+    m = sec.get("m", 1)
+    if isinstance(m, bool) or not isinstance(m, int | float) or m not in (1, 2):
+        raise StudyError(f"{where}.m = {m!r}: the denominator power of r = k K C/(1 + K C)^m "
+                         "must be 1 (single site) or 2 (dual site); write m = 1 or m = 2")
+    return Claim(str(sec.get("name", f"claim {i + 1}")), basis, float(k_ref), T_ref, 1000.0,
+                 Ea, None, _claimed_diffusivity(sec, where), str(sec.get("source", "")),
+                 str(sec.get("note", "")), rate_law="langmuir_hinshelwood",
+                 adsorption_constant=float(K), adsorption_enthalpy=float(dH), m=int(m))
 
 
 def _rate_constant(text: Any, n: float, C_ref: float, where: str) -> float:
@@ -232,6 +343,15 @@ def load_claims(path: str | Path) -> ClaimFile:
         order = 1.0
         effective_diffusivity = "4e-10 m^2/s"   # optional
 
+        [[claim]]                      # a Langmuir-Hinshelwood claim, r = k K C/(1 + K C)^m
+        rate_law = "langmuir_hinshelwood"
+        k_ref = "0.05 mol/(kg*s)"      # k at T_ref (or pre_exponential_factor)
+        reference_temperature = "60 degC"
+        activation_energy = "60 kJ/mol"
+        adsorption_constant = "0.8 L/mol"      # K at T_ref
+        adsorption_enthalpy = "-20 kJ/mol"     # required ("0 kJ/mol": K independent of T)
+        m = 1                          # 1 or 2, default 1
+
         [catalyst]                     # as in a study file
         geometry = "sphere"
         particle_density = "1300 kg/m^3"
@@ -283,7 +403,9 @@ def load_claims(path: str | Path) -> ClaimFile:
         raw_claims = [raw_claims]
     if not raw_claims or not isinstance(raw_claims, list):
         raise StudyError(f"{path.name}: no claim; add a [claim] table (or [[claim]] tables) "
-                         "with k_ref, reference_temperature, activation_energy and order")
+                         "with k_ref, reference_temperature, activation_energy and order (or "
+                         "rate_law = \"langmuir_hinshelwood\" with adsorption_constant and "
+                         "adsorption_enthalpy)")
     if "catalyst" not in doc:
         raise StudyError(f"{path.name}: the [catalyst] section is missing; give geometry and "
                          "particle_density as in a study file")
@@ -439,20 +561,14 @@ def _build(cf: ClaimFile, claim: Claim) -> _Built:
             "study": {"name": f"{cf.title}: {claim.name}"},
             "data": {"runs": runs, "observations": obs},
             "catalyst": dict(cf.doc["catalyst"]),
-            "kinetics": {"rate_law": "power",
-                         "reference_temperature": f"{claim.reference_temperature!r} K",
-                         "reference_concentration": f"{claim.reference_concentration!r} mol/m^3"},
+            "kinetics": claim.kinetics_section(),
             "pellet": {"diffusivity": "direct" if De else "none"},
         }
         if cf.film_section is not None:
             doc["film"] = dict(cf.film_section)
         if "fluid" in cf.doc:
             doc["fluid"] = dict(cf.doc["fluid"])
-        doc["parameters"] = {
-            "k_ref": {"value": f"{claim.k_ref!r} mol/(kg*s)"},
-            "activation_energy": {"value": f"{claim.activation_energy!r} J/mol"},
-            "order": {"value": claim.order},
-        }
+        doc["parameters"] = claim.parameter_section()
         if De:
             doc["parameters"]["effective_diffusivity"] = {"value": f"{De!r} m^2/s",
                                                           "vary": False}
@@ -512,11 +628,7 @@ def _film_dict(cf: ClaimFile, study: Study) -> dict[str, Any]:
 
 def _transport_table(built: _Built, cf: ClaimFile, claim: Claim):
     """Parameter table of the transport-aware model (kinetics varying, transport fixed)."""
-    sec: dict[str, Any] = {
-        "k_ref": {"value": f"{claim.k_ref!r} mol/(kg*s)"},
-        "activation_energy": {"value": f"{claim.activation_energy!r} J/mol"},
-        "order": {"value": claim.order},
-    }
+    sec: dict[str, Any] = claim.parameter_section()
     if built.De:
         sec["effective_diffusivity"] = {"value": f"{built.De!r} m^2/s", "vary": False}
     if cf.kc is not None:

@@ -1,0 +1,369 @@
+"""`kinfit audit` with Langmuir-Hinshelwood claims, r = k K C/(1 + K C)^m.
+
+The campaigns are INVENTED: batch runs generated in the test with kinfit's own model at a stated
+Langmuir-Hinshelwood truth (k_ref, Ea, K, dH_ads, m; De and kc known to the auditor) plus seeded
+Gaussian noise, as tests/test_audit.py does for power laws.
+
+Facts checked (sources in each test): the likelihood-ratio statistic n ln(S_claim/S_hat) is
+referred to chi2 with p degrees of freedom (Wilks 1938; quantiles from scipy.stats); the joint
+95 % region is S <= S_hat [1 + p/(n-p) F(p, n-p; 0.95)] (Beale 1960; scipy.stats.f); the local
+apparent order of the Langmuir-Hinshelwood law is d ln r/d ln C = 1 - m K C/(1 + K C) and its
+apparent activation energy Ea + n_app dH_ads (derived from the rate law, checked here against
+numerical derivatives of kinfit's rate); the Mears number r rho_p R |n|/(kc Cb) (Mears 1971);
+the Carberry limit 0.05/|n| (Carberry 1976).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import warnings
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import stats
+from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
+
+from kinfit.audit import FILM_EA_LIMIT, audit_claims, load_claims
+from kinfit.errors import StudyError
+from kinfit.fitting import FitOptions, fit_model, main_spec
+from kinfit.kinetics import LangmuirHinshelwood
+from kinfit.model import ModelSpec
+from kinfit.study import load_study
+
+R = 8.314462618
+LH_NAMES = ["k_ref", "activation_energy", "adsorption_constant", "adsorption_enthalpy"]
+#: invented truths: k_ref [mol/(kg s)], Ea and dH [kJ/mol], K [L/mol], m, De [m^2/s], kc [m/s],
+#: particle diameter [um]
+KINETIC = dict(k=0.08, Ea=70, K=1.5, dH=-20, m=1, De=5e-10, kc=2e-4, dp=20)
+PORE = dict(k=3.0, Ea=80, K=1.5, dH=-20, m=1, De=2e-10, kc=1e-3, dp=500)
+
+
+def truth_study(k: float, Ea: float, K: float, dH: float, m: int, De: float, kc: float,
+                dp: float) -> str:
+    """The Langmuir-Hinshelwood study at the true values (De and kc fixed, agitation film at
+    800 rpm and the campaign's diameter)."""
+    return study_text(
+        {"k_ref": f"{k} mol/(kg*s)", "activation_energy": f"{Ea} kJ/mol",
+         "adsorption_constant": f"{K} L/mol", "adsorption_enthalpy": f"{dH} kJ/mol",
+         "effective_diffusivity": f"{De} m^2/s", "kc_ref": f"{kc} m/s",
+         "agitation_exponent": 0.5, "size_exponent": 0.5},
+        vary={"effective_diffusivity": False, "kc_ref": False, "agitation_exponent": False,
+              "size_exponent": False},
+        rate_law="langmuir_hinshelwood", kinetics={"m": m},
+        reference_temperature="60 degC", reference_speed="800 rpm",
+        reference_diameter=f"{dp} um", pellet="direct", observations="observations.csv",
+    )
+
+
+def campaign(folder: Path, truth: dict, *, temperatures=(50, 60, 70), sigma: float = 3.0,
+             seed: int = 11):
+    """Batch runs (temperatures x 0.3, 1, 2 mol/L; 9 samples over 2 h) at 800 rpm and one
+    particle size, from Model.predict at the truth plus seeded noise (invented data)."""
+    times = np.linspace(0.0, 120.0, 9)
+    runs, obs = [], []
+    for T in temperatures:
+        for c0 in (0.3, 1.0, 2.0):
+            runs.append((f"R{len(runs) + 1}", T, 800, truth["dp"], 2, c0))
+            obs += [(runs[-1][0], f"{t:g}", c0 * 1000) for t in times]
+    path = write_study(folder, truth_study(**truth), runs_csv(runs), profiles_csv(obs),
+                       study_file="truth.toml", observations_file="observations.csv")
+    _, m, f = simulate(path, main_spec)
+    y = np.maximum(f + np.random.default_rng(seed).normal(0.0, sigma, f.size), 0.0)
+    (folder / "observations.csv").write_text(profiles_csv(profile_rows(m, y, fmt=".8g")))
+    return load_study(path), m
+
+
+def apparent_fit(study) -> dict[str, float]:
+    """What a supplier reports: the Langmuir-Hinshelwood law fitted with no film and no
+    pellet."""
+    bare = replace(study, film={"model": "none"}, pellet={"diffusivity": "none"})
+    spec = ModelSpec.from_study(bare, parameters=study.parameters.subset(LH_NAMES))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = fit_model(spec, bare, FitOptions(profile=False))
+    assert res.converged
+    return res.estimates()
+
+
+CLAIM = """\
+[claim]
+name = "supplier"
+rate_law = "langmuir_hinshelwood"
+k_ref = "{k!r} mol/(kg*s)"
+reference_temperature = "60 degC"
+activation_energy = "{Ea!r} J/mol"
+adsorption_constant = "{K!r} m^3/mol"
+adsorption_enthalpy = "{dH!r} J/mol"
+m = {m}
+effective_diffusivity = "{De} m^2/s"
+[catalyst]
+geometry = "sphere"
+particle_density = "1500 kg/m^3"
+[film]
+kc = "{kc} m/s"
+[data]
+runs = "runs.csv"
+observations = "observations.csv"
+"""
+
+
+def write_claim(folder: Path, values: dict, truth: dict) -> Path:
+    path = folder / "claim.toml"
+    path.write_text(CLAIM.format(k=values["k_ref"], Ea=values["activation_energy"],
+                                 K=values["adsorption_constant"],
+                                 dH=values["adsorption_enthalpy"], m=truth["m"],
+                                 De=truth["De"], kc=truth["kc"]))
+    return path
+
+
+def truth_values(truth: dict) -> dict[str, float]:
+    return {"k_ref": truth["k"], "activation_energy": truth["Ea"] * 1e3,
+            "adsorption_constant": truth["K"] * 1e-3, "adsorption_enthalpy": truth["dH"] * 1e3}
+
+
+def test_intrinsic_lh_claim_at_truth_is_consistent(tmp_path):
+    # kinetic regime by construction (eta > 0.99, Ca < 0.01): the truth must pass every
+    # criterion and lie inside the joint 95 % region of both refits over the four LH
+    # parameters (Beale 1960), with the LR p value from chi2 with 4 degrees of freedom
+    # (Wilks 1938; scipy.stats)
+    study, model = campaign(tmp_path, KINETIC)
+    st = model.run_states(model.x0)
+    assert np.all(st.criteria.effectiveness_factor > 0.99)
+    assert np.all(st.criteria.carberry < 0.01)
+    result = audit_claims(write_claim(tmp_path, truth_values(KINETIC), KINETIC))
+    c = result.claims[0]
+    assert c.verdict == "consistent with intrinsic kinetics", c.evidence
+    assert not c.evidence and not c.missing
+    assert c.values["rate_law"] == "langmuir_hinshelwood" and "order" not in c.values
+    for r in c.reproduction.values():
+        assert r["tested"] == LH_NAMES and (r["n_obs"], r["n_params"]) == (81, 4)
+        assert r["likelihood_ratio"] == pytest.approx(
+            r["n_obs"] * math.log(r["sse_claim"] / r["sse_optimum"]), rel=1e-12)
+        assert r["p_value"] == pytest.approx(stats.chi2.sf(r["likelihood_ratio"], 4), rel=1e-12)
+        n, p = r["n_obs"], r["n_params"]
+        bound = r["sse_optimum"] * (1 + p / (n - p) * stats.f.ppf(0.95, p, n - p))
+        assert r["joint_region_bound"] == pytest.approx(bound, rel=1e-12)
+        assert r["inside_joint_region"] and r["p_value"] > 0.05 and not r["rejected"]
+    # the pore signatures are power-law results: not tested for an LH claim, with the reason
+    for key in ("pore_activation_energy", "pore_order"):
+        assert c.signatures[key]["found"] is None
+        assert "not tested" in c.signatures[key]["text"]
+        assert "power-law" in c.signatures[key]["text"]
+    assert c.signatures["film"]["found"] is False
+    assert "consistent with intrinsic kinetics" in result.markdown()
+
+
+def test_pore_contaminated_lh_claim_is_rejected(tmp_path):
+    # large pellets, strong pore diffusion (eta ~ 0.06 to 0.23): an LH law fitted ignoring the
+    # pores returns a lower Ea (near half, Weisz & Prater 1954 for the power-law analogue) and
+    # a lower K; the auditor's transport-aware refit rejects it and recovers the truth
+    study, model = campaign(tmp_path, PORE)
+    st = model.run_states(model.x0)
+    assert np.all(st.criteria.regime == "pore")
+    claimed = apparent_fit(study)
+    assert claimed["activation_energy"] < 0.7 * PORE["Ea"] * 1e3
+    assert claimed["adsorption_constant"] < 0.5 * PORE["K"] * 1e-3
+    c = audit_claims(write_claim(tmp_path, claimed, PORE)).claims[0]
+    assert c.verdict == "transport-contaminated"
+    assert any("Weisz-Prater" in e for e in c.evidence)
+    assert any("eta = " in e and "'pore'" in e for e in c.evidence)
+    assert any("only when transport is ignored" in e for e in c.evidence)
+    ta, ao = c.reproduction["transport_aware"], c.reproduction["as_observed"]
+    assert ta["rejected"] and not ta["inside_joint_region"] and ta["p_value"] < 1e-6
+    assert not ao["rejected"]
+    est = ta["estimates"]
+    assert est["activation_energy"]["estimate"] == pytest.approx(PORE["Ea"] * 1e3, rel=0.05)
+    assert est["adsorption_constant"]["estimate"] == pytest.approx(PORE["K"] * 1e-3, rel=0.1)
+    assert est["k_ref"]["estimate"] == pytest.approx(PORE["k"], rel=0.1)
+
+
+def test_one_temperature_holds_ea_and_adsorption_enthalpy(tmp_path):
+    # one temperature cannot identify Ea nor dH_ads: both held at the claimed values, said so
+    campaign(tmp_path, KINETIC, temperatures=(60,))
+    c = audit_claims(write_claim(tmp_path, truth_values(KINETIC), KINETIC)).claims[0]
+    for r in c.reproduction.values():
+        assert r["tested"] == ["k_ref", "adsorption_constant"] and r["n_params"] == 2
+        assert not r["estimates"]["activation_energy"]["vary"]
+        assert not r["estimates"]["adsorption_enthalpy"]["vary"]
+        # two tested parameters: chi2 with 2 degrees of freedom (Wilks 1938; scipy.stats)
+        assert r["p_value"] == pytest.approx(stats.chi2.sf(r["likelihood_ratio"], 2),
+                                             rel=1e-12)
+    assert any("one temperature only" in n and "adsorption enthalpy" in n for n in c.notes)
+
+
+CONDITIONS_ONLY = """\
+[claim]
+name = "brochure"
+rate_law = "langmuir_hinshelwood"
+k_ref = "0.05 mol/(kg*s)"
+reference_temperature = "60 degC"
+activation_energy = "{Ea}"
+adsorption_constant = "{K}"
+adsorption_enthalpy = "{dH}"
+m = {m}
+[catalyst]
+geometry = "sphere"
+particle_density = "1500 kg/m^3"
+[conditions]
+temperature = ["50 degC", "70 degC"]
+stirrer_speed = "600 rpm"
+particle_diameter = "100 um"
+catalyst_loading = "2 g/L"
+initial_concentration = ["0.2 mol/L", "2 mol/L"]
+[film]
+kc = "5e-5 m/s"
+[pellet]
+effective_diffusivity = "4e-10 m^2/s"
+"""
+
+
+@pytest.mark.parametrize("m", [1, 2])
+def test_local_apparent_order_in_criteria(tmp_path, m):
+    # n_app = 1 - m K C/(1 + K C) with K = K_ref exp(-dH/R (1/T - 1/T_ref)) (van 't Hoff),
+    # checked against a central difference of ln r in ln C of kinfit's rate; Mears
+    # r rho_p (dp/2) |n|/(kc Cb) (Mears 1971); Carberry limit 0.05/|n| (Carberry 1976)
+    path = tmp_path / "claim.toml"
+    path.write_text(CONDITIONS_ONLY.format(Ea="60 kJ/mol", K="0.8 L/mol", dH="-20 kJ/mol",
+                                           m=m))
+    c = audit_claims(path).claims[0]
+    law = LangmuirHinshelwood(reference_temperature=333.15, m=m)
+    p = {"k_ref": 0.05, "activation_energy": 60e3, "adsorption_constant": 0.8e-3,
+         "adsorption_enthalpy": -20e3}
+    signs = []
+    for run in c.conditions["runs"].values():
+        T, Cb, dp = run["temperature"], run["initial_concentration"], run["particle_diameter"]
+        K = 0.8e-3 * math.exp(20e3 / R * (1 / T - 1 / 333.15))
+        r = 0.05 * math.exp(-60e3 / R * (1 / T - 1 / 333.15)) * K * Cb / (1 + K * Cb) ** m
+        assert run["claimed_rate"] == pytest.approx(r, rel=1e-9)
+        n_app = 1 - m * K * Cb / (1 + K * Cb)
+        h = 1e-4
+        numeric = (math.log(float(law.rate(Cb * math.exp(h), T, p)))
+                   - math.log(float(law.rate(Cb * math.exp(-h), T, p)))) / (2 * h)
+        assert n_app == pytest.approx(numeric, abs=1e-6)
+        o = run["observable"]
+        assert o["apparent_order"] == pytest.approx(n_app, rel=1e-9)
+        assert o["carberry_limit"] == pytest.approx(0.05 / abs(n_app), rel=1e-9)
+        assert o["mears"] == pytest.approx(r * 1500 * dp / 2 * abs(n_app) / (5e-5 * Cb),
+                                           rel=1e-9)
+        signs.append(n_app > 0)
+    if m == 2:
+        # K C = 0.8 L/mol x 2 mol/L > 1: past the rate maximum, negative apparent order
+        assert not all(signs)
+        assert any("apparent order is <= 0" in n for n in c.notes)
+    else:
+        assert all(signs)
+        assert not any("apparent order is <= 0" in n for n in c.notes)
+
+
+@pytest.mark.parametrize("Ea, dH, found", [("8 kJ/mol", "0 kJ/mol", True),
+                                           ("60 kJ/mol", "-20 kJ/mol", False),
+                                           # |E_app| < 15 kJ/mol at 0.2 mol/L only, not at 2
+                                           ("30 kJ/mol", "-30 kJ/mol", False)])
+def test_film_signature_uses_apparent_activation_energy(tmp_path, Ea, dH, found):
+    # E_app = -R d ln r/d(1/T) = Ea + n_app dH_ads (derived), checked against a central
+    # difference of kinfit's rate in 1/T; film control: |E_app| below 15 kJ/mol (common
+    # practice)
+    path = tmp_path / "claim.toml"
+    path.write_text(CONDITIONS_ONLY.format(Ea=Ea, K="0.8 L/mol", dH=dH, m=1))
+    c = audit_claims(path).claims[0]
+    sig = c.signatures["film"]
+    law = LangmuirHinshelwood(reference_temperature=333.15)
+    Ea_v, dH_v = float(Ea.split()[0]) * 1e3, float(dH.split()[0]) * 1e3
+    p = {"k_ref": 0.05, "activation_energy": Ea_v, "adsorption_constant": 0.8e-3,
+         "adsorption_enthalpy": dH_v}
+    for run, e_app in zip(c.conditions["runs"].values(), sig["apparent_activation_energy"],
+                          strict=True):
+        T, Cb = run["temperature"], run["initial_concentration"]
+        h = 1e-7
+        lo, hi = 1 / (1 / T + h), 1 / (1 / T - h)
+        # d(1/T) from lo to hi is -2h
+        numeric = -R * (math.log(float(law.rate(Cb, hi, p)))
+                        - math.log(float(law.rate(Cb, lo, p)))) / (-2 * h)
+        assert e_app == pytest.approx(numeric, rel=1e-5, abs=1.0)
+    assert sig["found"] is found
+    assert found == all(abs(e) < FILM_EA_LIMIT for e in sig["apparent_activation_energy"])
+
+
+def test_lh_markdown_and_json_show_lh_parameters(tmp_path):
+    path = tmp_path / "claim.toml"
+    path.write_text(CONDITIONS_ONLY.format(Ea="60 kJ/mol", K="0.8 L/mol", dH="-20 kJ/mol",
+                                           m=2))
+    result = audit_claims(path)
+    md = result.markdown()
+    assert "K = 0.8 L/mol, dH_ads = -20 kJ/mol, m = 2" in md
+    assert "apparent order" in md and "Langmuir-Hinshelwood" in md
+    data = result.to_dict()
+    v = data["claims"][0]["values"]
+    assert v["adsorption_constant"]["value"] == pytest.approx(0.8e-3)
+    assert v["m"]["value"] == 2 and "order" not in v
+    assert "lh_apparent_order" in data["sources"]
+    json.dumps(data)
+
+
+def test_power_law_report_unchanged():
+    # power-law claims keep their results: the invented example's audit equals the committed
+    # reports/claim/audit.json (manifest aside; floats to 1e-9)
+    root = Path(__file__).resolve().parents[1]
+    new = audit_claims(root / "examples" / "claim" / "claim.toml").to_dict()
+    old = json.loads((root / "reports" / "claim" / "audit.json").read_text())
+
+    def same(a, b, where="") -> None:
+        if isinstance(a, dict):
+            assert isinstance(b, dict) and set(a) == set(b), where
+            for k in a:
+                same(a[k], b[k], f"{where}.{k}")
+        elif isinstance(a, list):
+            assert isinstance(b, list) and len(a) == len(b), where
+            for i, (x, y) in enumerate(zip(a, b, strict=True)):
+                same(x, y, f"{where}[{i}]")
+        elif isinstance(a, float) and isinstance(b, float):
+            assert a == pytest.approx(b, rel=1e-9, abs=1e-300), where
+        else:
+            assert a == b, where
+
+    new.pop("manifest")
+    old.pop("manifest")
+    new["claim_file"] = old["claim_file"]
+    same(new, old)
+
+
+BAD = CONDITIONS_ONLY.format(Ea="60 kJ/mol", K="0.8 L/mol", dH="-20 kJ/mol", m=1)
+
+
+@pytest.mark.parametrize("edit, match", [
+    (('adsorption_constant = "0.8 L/mol"\n', ""),
+     r"claim.toml \[claim 'brochure'\]: 'adsorption_constant' is missing for rate_law = "
+     r"\"langmuir_hinshelwood\"; write for example adsorption_constant = \"0.8 L/mol\""),
+    (('adsorption_enthalpy = "-20 kJ/mol"\n', ""),
+     r"'adsorption_enthalpy' is missing .* \"0 kJ/mol\" if the claim takes K independent"),
+    (("m = 1", "m = 3"), r"claim 'brochure'\]\.m = 3: .* must be 1 \(single site\) or 2 "
+                         r"\(dual site\); write m = 1 or m = 2"),
+    (("m = 1", "m = true"), r"\.m = True"),
+    (("m = 1", "m = 1\nsite_density = 3"), r"unknown key\(s\) \['site_density'\]; allowed "
+                                           r"keys are \[.*'adsorption_constant'"),
+    (("m = 1", "m = 1\norder = 1.0"), r"key\(s\) \['order'\] belong to rate_law = \"power\""),
+    (('adsorption_constant = "0.8 L/mol"', 'adsorption_constant = "0.8 mol/L"'),
+     r"adsorption_constant"),
+    (('adsorption_constant = "0.8 L/mol"', 'adsorption_constant = "-0.8 L/mol"'),
+     r"adsorption_constant must be > 0"),
+    (('rate_law = "langmuir_hinshelwood"', 'rate_law = "eley_rideal"'),
+     r"rate_law = 'eley_rideal' is not supported .* \"langmuir_hinshelwood\""),
+])
+def test_bad_lh_claim_files_name_the_problem(tmp_path, edit, match):
+    path = tmp_path / "claim.toml"
+    assert edit[0] in BAD
+    path.write_text(BAD.replace(*edit))
+    with pytest.raises(StudyError, match=match):
+        load_claims(path)
+
+
+def test_lh_claim_loads_with_default_m(tmp_path):
+    path = tmp_path / "claim.toml"
+    path.write_text(BAD.replace("m = 1\n", ""))
+    claim = load_claims(path).claims[0]
+    assert claim.m == 1 and claim.order is None and claim.is_lh
+    assert claim.adsorption_constant == pytest.approx(0.8e-3, rel=1e-12)  # 1 L = 1e-3 m^3
+    assert claim.adsorption_enthalpy == pytest.approx(-20e3, rel=1e-12)
