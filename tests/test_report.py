@@ -464,6 +464,24 @@ def test_regime_map_labels_coincident_runs_once_and_do_not_overlap():
             assert not a.overlaps(b), (a, b)
 
 
+def test_regime_map_is_the_same_in_every_process():
+    """Label placement must not depend on the time it is given (adjustText's default is a
+    time limit, which the demo's crowded corner reaches): two fresh interpreters draw
+    byte-identical SVG from the committed demo results."""
+    import subprocess
+    import sys
+
+    results = Path(__file__).resolve().parents[1] / "reports" / "demo" / "results.json"
+    code = ("import json, sys; from kinfit.report import figures as fg; "
+            f"d = json.load(open({str(results)!r}))['runs']; "
+            "runs = [(k, v['weisz_prater'], v['carberry'], v['regime']) for k, v in d.items()]; "
+            "fig = fg.regime_map_figure(runs, carberry_limit=0.0332, weisz_prater_limit=0.0333); "
+            "sys.stdout.write(fg.render(fig)[1])")
+    out = [subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True, timeout=120).stdout for _ in range(2)]
+    assert out[0] and out[0] == out[1]
+
+
 def test_same_results_give_the_same_report(fitted, plain_report):
     from kinfit.report import build_report
 

@@ -577,7 +577,8 @@ def _label_points(ax: Any, points: Sequence[tuple[str, float, float]], *,
                   fontsize: float) -> None:
     """Label points without overprinting: points that coincide on the plot (within 1.5 % of
     the axes) share one label ("R01, R02"); adjustText then moves labels off each other and
-    off the markers, with a thin leader line where a label had to move away."""
+    off the markers, with a thin leader line where a label had to move away. The placement
+    runs a fixed number of steps, so a figure is the same from one run to the next."""
     from adjustText import adjust_text
 
     to_px = ax.transData.transform
@@ -594,9 +595,11 @@ def _label_points(ax: Any, points: Sequence[tuple[str, float, float]], *,
     texts = [ax.text(x, y, ", ".join(names), fontsize=fontsize, color=INK, ha="left",
                      va="bottom") for names, _, x, y in groups]
     if len(texts) > 1:
+        # a step count, not adjustText's default time limit: the same results draw the same
+        # figure on any machine
         adjust_text(texts, x=[p[1] for p in points], y=[p[2] for p in points], ax=ax,
                     arrowprops={"arrowstyle": "-", "color": MUTED, "lw": 0.4},
-                    ensure_inside_axes=True)
+                    ensure_inside_axes=True, iter_lim=400)
 
 
 # ---------------------------------------------------------------------------------- statistics
