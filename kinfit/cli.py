@@ -17,6 +17,7 @@ from kinfit.errors import KinfitError, StudyError
 __all__ = ["main", "build_parser"]
 
 EXIT_OK, EXIT_FAILED, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report SIGINT
 
 
 class _Parser(argparse.ArgumentParser):
@@ -87,7 +88,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     if boot.get("interrupted"):
         print(f"kinfit: bootstrap interrupted after {boot['n_done']} of {boot['n']} replicates; "
               "the results are saved with the intervals of the finished ones", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     if not result.converged:
         print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
         return EXIT_FAILED
@@ -136,7 +137,7 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     if post.interrupted:
         print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
               file=sys.stderr)
-        return EXIT_FAILED
+        return EXIT_INTERRUPTED
     if args.require_converged and not post.converged:
         print(f"kinfit: the chain did not converge: {post.verdict}", file=sys.stderr)
         return EXIT_FAILED
@@ -196,6 +197,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
             progress=not args.quiet), argv=sys.argv)
         print(post.report())
+        if post.interrupted:
+            # what was sampled is checkpointed; the report is still written from it
+            code = EXIT_INTERRUPTED
     step("diagnosing transport run by run")
     diagnosis = diagnose(study, result, posterior_dir=out)
     diagnosis.save(out)
@@ -203,6 +207,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
     step("writing the report")
     written = build_report(study, out, out, argv=sys.argv)
     step(f"done: {written.html}")
+    if code == EXIT_INTERRUPTED:
+        print("kinfit: sampling was interrupted; the report shows the chain so far. To go on: "
+              f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
+              f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
+              file=sys.stderr)
     return code
 
 
@@ -325,7 +334,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_FAILED
     except KeyboardInterrupt:
         print("kinfit: interrupted; outputs written so far are kept", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -143,3 +143,47 @@ def test_bad_input_names_the_problem(fitted, tmp_path, capsys):
     # resuming without a checkpoint says what to do
     assert _sample(fitted, tmp_path / "empty", "--steps", "10", "--resume") == 2
     assert "checkpoint" in capsys.readouterr().err
+
+
+def _interrupt_after(monkeypatch, steps):
+    """Make emcee's sampler raise KeyboardInterrupt after ``steps`` steps, as Ctrl-C would."""
+    import emcee
+
+    original = emcee.EnsembleSampler.sample
+    done = [0]  # steps over every call (the sampler is called once per chunk)
+
+    def sample(self, *args, **kwargs):
+        for state in original(self, *args, **kwargs):
+            if done[0] >= steps:
+                raise KeyboardInterrupt
+            done[0] += 1
+            yield state
+
+    monkeypatch.setattr(emcee.EnsembleSampler, "sample", sample)
+
+
+def test_ctrl_c_keeps_the_chain_and_resume_finishes_it(fitted, tmp_path, monkeypatch, capsys):
+    _interrupt_after(monkeypatch, 120)
+    assert _sample(fitted, tmp_path, "--steps", "300", "--seed", "4", "--chunk", "100") == 130
+    assert "interrupted" in capsys.readouterr().err
+    post = json.loads((tmp_path / "posterior.json").read_text())
+    assert post["convergence"]["interrupted"] is True
+    kept = post["sampler"]["steps"]
+    assert kept in (120, 121)  # the step emcee had finished when the interrupt came is kept
+    monkeypatch.undo()
+    assert _sample(fitted, tmp_path, "--steps", "300", "--seed", "4", "--chunk", "100",
+                   "--resume") == 0
+    post = json.loads((tmp_path / "posterior.json").read_text())
+    assert post["sampler"]["steps"] == 300 and post["sampler"]["resumed_from"] == kept
+
+
+def test_run_interrupted_while_sampling_still_writes_the_report(tmp_path, monkeypatch, capsys):
+    # `kinfit run`: Ctrl-C during sampling keeps the chain, the report is written from it,
+    # the exit code is 130 and the message says how to go on
+    _interrupt_after(monkeypatch, 80)
+    out = tmp_path / "run"
+    assert main(["run", str(DEMO), "--out", str(out), "--steps", "400", "--quiet"]) == 130
+    err = capsys.readouterr().err
+    assert "--resume" in err and "kinfit report" in err
+    assert (out / "report.html").is_file() and (out / "posterior_checkpoint.npz").is_file()
+    assert json.loads((out / "posterior.json").read_text())["convergence"]["interrupted"]
