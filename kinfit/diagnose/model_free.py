@@ -22,6 +22,11 @@ pooled times (lower degrees for short runs); the number of knots minimises the B
 does not pass for a difference between levels. Choosing it on the separate fits instead would
 favour the separate model and raise the false-alarm rate (about 10 % at a nominal 5 % in a
 simulation of identical exponential profiles; choosing on the pooled fit gave 4-7 %).
+When the study's error model is ``proportional``, both models are refitted with weights
+1/c^2 taken from the pooled curve (two-stage weighted least squares). Unweighted, identical
+profiles with 4 % relative noise were called different in 28 % of 400 simulated pairs at a
+nominal 5 %; weighted, in 4 % (``tests/test_model_free_weighting.py``). A ``combined`` error
+model is not weighted for, and the result says so.
 
 Rates (differential or initial-rate campaigns). A constant per level against one constant: the
 same F test, which is one-way analysis of variance (Fisher 1925; checked against
@@ -383,6 +388,18 @@ def compare_profiles(study: Study, cs: ComparisonSet, *, alpha: float = 0.05,
     xs = x / x_max
     n_levels = len(cs.values)
     fit = _select_basis(xs, y, sw, level, n_levels)
+    weighting = ""
+    if fit is not None and study.error_model == "proportional":
+        # noise proportional to the concentration: weights 1/yhat^2 from the pooled curve,
+        # the same for both models so that they stay nested (two-stage weighted least
+        # squares; Carroll & Ruppert 1988, ch. 2, from memory)
+        X = fit.basis(xs)
+        _, _, coef = _wls(X, y, sw)
+        yhat = np.abs(X @ coef)
+        floor = 1e-3 * float(np.max(np.abs(y))) if y.size else 1.0
+        sw = sw / np.maximum(yhat, max(floor, 1e-300))
+        fit = _fit_levels(xs, y, sw, level, n_levels, fit.basis, fit.label)
+        weighting = ", weighted 1/c^2 from the pooled curve (proportional noise)"
     if fit is None:
         counts = np.bincount(level, minlength=n_levels)
         return NotPossible(
@@ -410,7 +427,7 @@ def compare_profiles(study: Study, cs: ComparisonSet, *, alpha: float = 0.05,
     what = ("profiles against time multiplied by loading (w t)" if scaled
             else "profiles against time")
     label = (f"extra-sum-of-squares F test: one smooth curve vs one per level, {what}, "
-             f"cubic regression spline ({fit.label}), noise from the separate fits")
+             f"cubic regression spline ({fit.label}){weighting}, noise from the separate fits")
     different = bool(test.p_value < alpha)
     direction = _direction(cs.values, conv) if different else "none"
     return FactorTest(
@@ -676,8 +693,9 @@ def model_free_tests(study: Study, *, alpha: float = 0.05, rtol: float = 0.01
                      f"{len(tests) * alpha:.1f} differences are expected by chance alone "
                      f"({chance} found); a difference with p just below alpha that breaks the "
                      "pattern of the other tests deserves a repeat run before it is believed")
-    if study.kind == "profile" and study.error_model != "constant":
-        notes.append("the model-free profile tests assume a constant noise level along each "
-                     f"profile; the study's error model is '{study.error_model}'")
+    if study.kind == "profile" and study.error_model == "combined":
+        notes.append("the model-free profile tests weight for a constant or a proportional "
+                     "noise level along each profile, not for the study's 'combined' error "
+                     "model; they were run with constant noise")
     return ModelFreeResult(tuple(_cross_reference(tests, rtol)), tuple(missing), float(alpha),
                            tuple(notes))
