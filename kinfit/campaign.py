@@ -65,8 +65,7 @@ def campaign_summary(study: Study) -> str:
             continue
         lines.append(f"  {factor}: {len(sets)} set(s), tests {meaning}")
         for s in sets:
-            at = ", ".join(_fmt(f, v) for f, v in s.fixed.items()
-                           if f in ("temperature", "particle_diameter", "stirrer_speed"))
+            at = ", ".join(_fmt(f, v) for f, v in s.fixed.items() if f in varied)
             lines.append(f"    {' vs '.join(_fmt(factor, v) for v in s.values)} at {at}: "
                          f"runs {', '.join(s.runs)}")
     if "temperature" not in varied:

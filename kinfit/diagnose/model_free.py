@@ -110,7 +110,8 @@ def format_factor(factor: str, value: float) -> str:
 
 
 def _conditions(factor: str, fixed: dict[str, float]) -> str:
-    keys = [f for f in ("temperature", "particle_diameter", "stirrer_speed") if f != factor]
+    keys = [f for f in ("temperature", "particle_diameter", "stirrer_speed", "catalyst_loading")
+            if f != factor]
     return ", ".join(format_factor(f, fixed[f]) for f in keys if f in fixed)
 
 
