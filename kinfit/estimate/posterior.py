@@ -289,7 +289,7 @@ class Posterior:
         lines = [
             f"posterior: {self.n_draws} draws ({self.chain_shape[1]} walkers, "
             f"{self.settings.n_steps} steps, burn-in {self.settings.burn_in}, thin "
-            f"{self.settings.thin}, seed {self.settings.seed})",
+            f"{self.settings.thin}, seed {self.settings.seed}, {self.settings.moves} moves)",
             f"{'name':<24}{'median':>13}{'q05':>13}{'q95':>13}{'rhat':>8}{'ess':>8}",
         ]
         for name, s in self.summary().items():
