@@ -32,8 +32,9 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["RUNS_HEADER", "Hang", "Raw", "alarm", "model_of", "numbered", "profile_rows",
-           "profiles_csv", "runs_csv", "simulate", "study_text", "write_study"]
+__all__ = ["RUNS_HEADER", "Hang", "Raw", "alarm", "model_of", "noisy_batch_campaign",
+           "numbered", "profile_rows", "profiles_csv", "runs_csv", "simulate", "study_text",
+           "write_study"]
 
 #: header of the runs table in the units the tests write (degC, rpm, um, g/L, mol/L)
 RUNS_HEADER = ("run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],"
@@ -215,3 +216,22 @@ def alarm(seconds: float, message: str = "longer than {seconds:g} s") -> Iterato
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, old)
+
+
+def noisy_batch_campaign(folder: Path, truth_text: str, runs: Sequence[Sequence[object]],
+                         times_min: np.ndarray, *, sigma: float, seed: int,
+                         spec: Callable[[Any], Any] | None = None) -> tuple[Any, Any]:
+    """Batch runs simulated at the truth study's values plus seeded Gaussian noise of sd
+    ``sigma`` (mol/m^3, clipped at 0), written as ``truth.toml`` and ``observations.csv`` in
+    ``folder``. ``runs`` rows are (run, T [degC], N [rpm], dp [um], w [g/L], C0 [mol/L]);
+    every run is sampled at ``times_min``. Returns (study, model)."""
+    from kinfit.study import load_study
+
+    obs = [(r[0], f"{t:g}", float(r[5]) * 1000) for r in runs for t in times_min]
+    path = write_study(folder, truth_text, runs_csv(runs), profiles_csv(obs),
+                       study_file="truth.toml", observations_file="observations.csv")
+    _, model, f = simulate(path, spec)
+    y = np.maximum(f + np.random.default_rng(seed).normal(0.0, sigma, f.size), 0.0)
+    (Path(folder) / "observations.csv").write_text(
+        profiles_csv(profile_rows(model, y, fmt=".8g")))
+    return load_study(path), model

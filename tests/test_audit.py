@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
+from studies import noisy_batch_campaign, numbered, study_text
 
 from kinfit.audit import (
     FILM_EA_LIMIT,
@@ -31,7 +31,6 @@ from kinfit.audit import (
 from kinfit.errors import StudyError
 from kinfit.fitting import FitOptions, fit_model, main_spec
 from kinfit.model import ModelSpec
-from kinfit.study import load_study
 
 
 def truth_study(k: float, Ea: float, n: float, De: float, kc: float, dp: float) -> str:
@@ -76,18 +75,9 @@ PORE = dict(k=1.0, Ea=80, n=1.0, De=2e-10, kc=1e-3, dp=500)
 def campaign(folder: Path, truth: dict, *, sigma: float = 3.0, seed: int = 7):
     """Six batch runs (50, 60, 70 degC x 0.5, 1 mol/L) at one speed and one particle size,
     generated with Model.predict at the true values plus seeded Gaussian noise."""
-    times = np.linspace(0.0, 120.0, 9)
-    runs, obs = [], []
-    for T in (50, 60, 70):
-        for c0 in (0.5, 1.0):
-            runs.append((f"R{len(runs) + 1}", T, 800, truth["dp"], 2, c0))
-            obs += [(runs[-1][0], f"{t:g}", c0 * 1000) for t in times]
-    path = write_study(folder, truth_study(**truth), runs_csv(runs), profiles_csv(obs),
-                       study_file="truth.toml", observations_file="observations.csv")
-    _, m, f = simulate(path, main_spec)
-    y = np.maximum(f + np.random.default_rng(seed).normal(0.0, sigma, f.size), 0.0)
-    (folder / "observations.csv").write_text(profiles_csv(profile_rows(m, y, fmt=".8g")))
-    return load_study(path), m
+    runs = numbered((T, 800, truth["dp"], 2, c0) for T in (50, 60, 70) for c0 in (0.5, 1.0))
+    return noisy_batch_campaign(folder, truth_study(**truth), runs, np.linspace(0.0, 120.0, 9),
+                                sigma=sigma, seed=seed, spec=main_spec)
 
 
 def apparent_fit(study) -> dict[str, float]:

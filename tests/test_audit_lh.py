@@ -24,14 +24,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 from scipy import stats
-from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
+from studies import noisy_batch_campaign, numbered, study_text
 
 from kinfit.audit import FILM_EA_LIMIT, audit_claims, load_claims
 from kinfit.errors import StudyError
 from kinfit.fitting import FitOptions, fit_model, main_spec
 from kinfit.kinetics import LangmuirHinshelwood
 from kinfit.model import ModelSpec
-from kinfit.study import load_study
 
 R = 8.314462618
 LH_NAMES = ["k_ref", "activation_energy", "adsorption_constant", "adsorption_enthalpy"]
@@ -62,18 +61,9 @@ def campaign(folder: Path, truth: dict, *, temperatures=(50, 60, 70), sigma: flo
              seed: int = 11):
     """Batch runs (temperatures x 0.3, 1, 2 mol/L; 9 samples over 2 h) at 800 rpm and one
     particle size, from Model.predict at the truth plus seeded noise (invented data)."""
-    times = np.linspace(0.0, 120.0, 9)
-    runs, obs = [], []
-    for T in temperatures:
-        for c0 in (0.3, 1.0, 2.0):
-            runs.append((f"R{len(runs) + 1}", T, 800, truth["dp"], 2, c0))
-            obs += [(runs[-1][0], f"{t:g}", c0 * 1000) for t in times]
-    path = write_study(folder, truth_study(**truth), runs_csv(runs), profiles_csv(obs),
-                       study_file="truth.toml", observations_file="observations.csv")
-    _, m, f = simulate(path, main_spec)
-    y = np.maximum(f + np.random.default_rng(seed).normal(0.0, sigma, f.size), 0.0)
-    (folder / "observations.csv").write_text(profiles_csv(profile_rows(m, y, fmt=".8g")))
-    return load_study(path), m
+    runs = numbered((T, 800, truth["dp"], 2, c0) for T in temperatures for c0 in (0.3, 1.0, 2.0))
+    return noisy_batch_campaign(folder, truth_study(**truth), runs, np.linspace(0.0, 120.0, 9),
+                                sigma=sigma, seed=seed, spec=main_spec)
 
 
 def apparent_fit(study) -> dict[str, float]:
