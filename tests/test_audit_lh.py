@@ -357,3 +357,26 @@ def test_lh_claim_loads_with_default_m(tmp_path):
     assert claim.m == 1 and claim.order is None and claim.is_lh
     assert claim.adsorption_constant == pytest.approx(0.8e-3, rel=1e-12)  # 1 L = 1e-3 m^3
     assert claim.adsorption_enthalpy == pytest.approx(-20e3, rel=1e-12)
+
+
+def test_readme_lh_claim_example_reads_as_documented(tmp_path):
+    # the Langmuir-Hinshelwood claim shown in README.md, completed with the catalyst, film,
+    # pellet and data sections of examples/claim/claim.toml, loads with the stated values
+    import re
+    import shutil
+
+    root = Path(__file__).resolve().parents[1]
+    snippet = re.search(r"```toml\n(.*?)```", (root / "README.md").read_text(), re.S)
+    assert snippet is not None
+    example = (root / "examples" / "claim" / "claim.toml").read_text()
+    for name in ("runs.csv", "observations.csv"):
+        shutil.copy(root / "examples" / "claim" / name, tmp_path / name)
+    path = tmp_path / "claim.toml"
+    path.write_text(snippet.group(1) + "\n" + example[example.index("[catalyst]"):])
+    claim = load_claims(path).claims[0]
+    assert claim.is_lh and claim.m == 1 and claim.basis == "as measured"
+    assert claim.k_ref == pytest.approx(0.08)
+    assert claim.activation_energy == pytest.approx(70e3)
+    assert claim.adsorption_constant == pytest.approx(1.5e-3)
+    assert claim.adsorption_enthalpy == pytest.approx(-20e3)
+    assert claim.reference_temperature == pytest.approx(333.15)
