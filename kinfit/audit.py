@@ -48,6 +48,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import stats
 
+from kinfit.audit_lh import lh_local, lh_signatures
 from kinfit.claims import (  # noqa: F401 - re-exported for callers of the audit
     BASES,
     Claim,
@@ -201,19 +202,6 @@ def _fixed(table):
 
 def _spec(study: Study, table, *, check: bool = True) -> ModelSpec:
     return ModelSpec.from_study(study, parameters=table, check=check)
-
-
-def lh_local(claim: Claim, T: Array, C: Array) -> tuple[Array, Array]:
-    """Local apparent order n_app = 1 - m K C/(1 + K C) and apparent activation energy
-    E_app = Ea + n_app dH_ads [J/mol] of a Langmuir-Hinshelwood claim at (T, C) (derived from
-    r = k K C/(1 + K C)^m with Arrhenius k and van 't Hoff K)."""
-    from kinfit.kinetics import van_t_hoff
-
-    K = np.asarray(van_t_hoff(claim.values()["adsorption_constant"], claim.adsorption_enthalpy,
-                              np.asarray(T, dtype=float), claim.reference_temperature))
-    KC = K * np.maximum(np.asarray(C, dtype=float), 0.0)
-    n_app = 1.0 - claim.m * KC / (1.0 + KC)
-    return n_app, claim.activation_energy + n_app * claim.adsorption_enthalpy
 
 
 def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
@@ -420,35 +408,6 @@ def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: 
     return out
 
 
-def _lh_signatures(claim: Claim, crit: dict[str, Any]) -> dict[str, Any]:
-    """Signatures of a Langmuir-Hinshelwood claim: film control from the claimed law's apparent
-    activation energy and order at the test conditions; the pore signatures not tested."""
-    runs = list(crit["runs"].values())
-    T = np.array([r["temperature"] for r in runs])
-    C = np.array([r["initial_concentration"] for r in runs])
-    n_app, E_app = lh_local(claim, T, C)
-    film = bool(np.all(np.abs(E_app) < FILM_EA_LIMIT))
-    first = bool(np.all(np.abs(n_app - 1.0) <= ORDER_TOLERANCE))
-    span = (f"{E_app.min() / 1e3:.3g} to {E_app.max() / 1e3:.3g} kJ/mol" if E_app.size > 1
-            and not np.isclose(E_app.min(), E_app.max()) else f"{E_app.mean() / 1e3:.3g} kJ/mol")
-    head = (f"apparent activation energy of the claimed law at the test conditions, "
-            f"Ea + n_app dH_ads = {span}")
-    why = ("the halving of Ea and the apparent order (n + 1)/2 under strong pore diffusion are "
-           "results for n-th order (power-law) kinetics (Weisz & Prater 1954; Satterfield "
-           "1970); no signature of that kind is tested for a Langmuir-Hinshelwood law here, "
-           "where the criteria and the transport-aware refit carry the pore evidence")
-    return {
-        "film": {"found": film, "apparent_activation_energy": [float(e) for e in E_app],
-                 "apparent_order": [float(n) for n in n_app],
-                 "text": (f"{head}, is near zero (|E_app| below {FILM_EA_LIMIT / 1e3:g} kJ/mol)"
-                          + (" with a first apparent order" if first else "")
-                          + ": the signature of film control (common practice)") if film else
-                         f"{head}, is not near zero: no film signature"},
-        "pore_activation_energy": {"found": None, "text": f"not tested: {why}"},
-        "pore_order": {"found": None, "text": f"not tested: {why}"},
-    }
-
-
 def _criteria_evidence(crit: dict[str, Any], thresholds: Thresholds) -> tuple[list[str], bool]:
     """Sentences on criteria that fail at the test conditions, and whether any could not be
     computed."""
@@ -534,8 +493,8 @@ def _audit_one(cf: ClaimFile, claim: Claim, thresholds: Thresholds) -> ClaimAudi
             if not r["converged"]:
                 notes.append(f"the {key.replace('_', '-')} refit did not converge "
                              f"({r['message']}); its test is indicative only")
-    signatures = (_lh_signatures(claim, crit) if claim.is_lh else
-                  _signatures(claim, transport_fit, bool(built.De)))
+    signatures = (lh_signatures(claim, crit, transport_fit, bool(built.De)) if claim.is_lh
+                  else _signatures(claim, transport_fit, bool(built.De)))
     evidence: list[str] = []
     if claim.basis == "as measured":
         evidence += crit_evidence
