@@ -48,7 +48,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import stats
 
-from kinfit.audit_lh import lh_local, lh_signatures
+from kinfit.audit_lh import lh_local, lh_signatures, pore_not_tested
 from kinfit.claims import (  # noqa: F401 - re-exported for callers of the audit
     BASES,
     Claim,
@@ -350,13 +350,11 @@ def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: 
                 (f"claimed activation energy {Ea / 1e3:.3g} kJ/mol is not near zero: no film "
                  "signature"),
     }
-    if transport_fit is None or not (transport_fit["converged"] and has_pellet):
-        why = ("no effective diffusivity, so no pore-diffusion refit" if not has_pellet else
-               "no data" if transport_fit is None else "the transport-aware refit did not "
-               "converge")
-        out["pore_activation_energy"] = {"found": None, "text": f"not tested: {why}"}
-        out["pore_order"] = {"found": None, "text": f"not tested: {why}"}
+    skip = pore_not_tested(transport_fit, has_pellet)
+    if skip is not None:
+        out.update(skip)
         return out
+    assert transport_fit is not None  # pore_not_tested returned None
     est = transport_fit["estimates"]
     pore_runs = [rid for rid, g in transport_fit["regimes"].items() if g == "pore"]
     if not pore_runs:

@@ -30,7 +30,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from kinfit.claims import Claim
 
-__all__ = ["lh_local", "strong_pore_apparent", "lh_signatures"]
+__all__ = ["lh_local", "strong_pore_apparent", "lh_signatures", "pore_not_tested"]
 
 Array = NDArray[np.float64]
 
@@ -79,6 +79,18 @@ def strong_pore_apparent(Ea: float, K_ref: float, dH: float, m: int, T: ArrayLik
     return 0.5 * omega, 0.5 * (Ea + (omega - 1.0) * dH)
 
 
+def pore_not_tested(transport_fit: dict[str, Any] | None, has_pellet: bool
+                    ) -> dict[str, dict[str, Any]] | None:
+    """The two pore signatures marked "not tested", with the reason, when there is no
+    converged transport-aware refit with a pellet to compare with; else None."""
+    if transport_fit is not None and transport_fit["converged"] and has_pellet:
+        return None
+    why = ("no effective diffusivity, so no pore-diffusion refit" if not has_pellet else
+           "no data" if transport_fit is None else "the transport-aware refit did not converge")
+    return {key: {"found": None, "text": f"not tested: {why}"}
+            for key in ("pore_activation_energy", "pore_order")}
+
+
 def lh_signatures(claim: Claim, crit: dict[str, Any], transport_fit: dict[str, Any] | None,
                   has_pellet: bool) -> dict[str, Any]:
     """Signatures of a Langmuir-Hinshelwood claim: film control from the claimed law's
@@ -106,13 +118,11 @@ def lh_signatures(claim: Claim, crit: dict[str, Any], transport_fit: dict[str, A
                           + ": the signature of film control (common practice)") if film else
                          f"{head}, is not near zero: no film signature"},
     }
-    if transport_fit is None or not (transport_fit["converged"] and has_pellet):
-        why = ("no effective diffusivity, so no pore-diffusion refit" if not has_pellet else
-               "no data" if transport_fit is None else "the transport-aware refit did not "
-               "converge")
-        out["pore_activation_energy"] = {"found": None, "text": f"not tested: {why}"}
-        out["pore_order"] = {"found": None, "text": f"not tested: {why}"}
+    skip = pore_not_tested(transport_fit, has_pellet)
+    if skip is not None:
+        out.update(skip)
         return out
+    assert transport_fit is not None  # pore_not_tested returned None
     pore = [i for i, r in enumerate(ids) if transport_fit["regimes"].get(r) == "pore"]
     if not pore:
         text = ("not expected: at the transport-aware refit no test run is in the pore "
