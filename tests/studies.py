@@ -72,8 +72,9 @@ def study_text(
     kinetics: Mapping[str, object] | None = None,
     sections: str = "",
     comment: str | None = None,
+    geometry: str = "sphere",
 ) -> str:
-    """The TOML text of a study on spheres of 1500 kg/m^3.
+    """The TOML text of a study on particles of 1500 kg/m^3 (spheres unless ``geometry``).
 
     Parameters
     ----------
@@ -101,6 +102,8 @@ def study_text(
         TOML text appended after the parameter blocks (further sections).
     comment : str or None
         A ``#`` comment line at the top.
+    geometry : str
+        ``[catalyst] geometry``.
     """
     blocks = []
     if comment is not None:
@@ -108,7 +111,7 @@ def study_text(
     if name is not None:
         blocks.append(f'[study]\nname = "{name}"\n')
     blocks.append(f'[data]\nruns = "{runs}"\nobservations = "{observations}"\n')
-    blocks.append('[catalyst]\ngeometry = "sphere"\nparticle_density = "1500 kg/m^3"\n')
+    blocks.append(f'[catalyst]\ngeometry = "{geometry}"\nparticle_density = "1500 kg/m^3"\n')
     kin = {"rate_law": rate_law, "reference_temperature": reference_temperature,
            **(kinetics or {})}
     blocks.append("[kinetics]\n" + "".join(f"{k} = {_toml_value(v)}\n" for k, v in kin.items()))

@@ -1,4 +1,8 @@
-"""Nothing lost: an interrupted bootstrap keeps the replicates it finished and says so."""
+"""Nothing lost: an interrupted bootstrap keeps the replicates it finished and says so, and a
+results file is read only with the predictions written with it.
+
+Behaviour checks of kinfit's own promises (README: exit codes, nothing lost); no outside
+source applies. The decay data are invented."""
 
 from __future__ import annotations
 

@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 from pellet_reference import reference_eta
 from scipy.integrate import quad
+from studies import study_text
 
 from kinfit.errors import ModelError
 from kinfit.kinetics import LangmuirHinshelwood
@@ -278,43 +279,6 @@ def test_generalised_modulus_of_the_table_path():
         np.testing.assert_allclose(phi1 * f, phi, rtol=1e-12)
 
 
-STUDY = """\
-[data]
-runs = "runs.csv"
-observations = "obs.csv"
-
-[catalyst]
-geometry = "{geometry}"
-particle_density = "1500 kg/m^3"
-
-[kinetics]
-rate_law = "langmuir_hinshelwood"
-reference_temperature = "55 degC"
-m = {m}
-
-[film]
-model = "agitation"
-reference_speed = "600 rpm"
-reference_diameter = "80 um"
-
-[parameters.k_ref]
-value = "0.5 mol/(kg*s)"
-[parameters.activation_energy]
-value = "55 kJ/mol"
-[parameters.adsorption_constant]
-value = "{K} L/mol"
-[parameters.adsorption_enthalpy]
-value = "-20 kJ/mol"
-[parameters.effective_diffusivity]
-value = "3e-10 m^2/s"
-[parameters.kc_ref]
-value = "4e-5 m/s"
-[parameters.agitation_exponent]
-value = 0.6
-[parameters.size_exponent]
-value = 0.5
-"""
-
 # invented demo runs
 RUNS = """\
 run,temperature [degC],stirrer_speed [rpm],particle_diameter [um],catalyst_loading [g/L],initial_concentration [mol/L]
@@ -326,7 +290,14 @@ S4,70,1200,250,5,0.8
 
 
 def lh_model(tmp: Path, m: int, geometry: str, K: float) -> Model:
-    (tmp / "study.toml").write_text(STUDY.format(m=m, geometry=geometry, K=K))
+    text = study_text(
+        {"k_ref": "0.5 mol/(kg*s)", "activation_energy": "55 kJ/mol",
+         "adsorption_constant": f"{K} L/mol", "adsorption_enthalpy": "-20 kJ/mol",
+         "effective_diffusivity": "3e-10 m^2/s", "kc_ref": "4e-5 m/s",
+         "agitation_exponent": 0.6, "size_exponent": 0.5},
+        rate_law="langmuir_hinshelwood", kinetics={"m": m}, geometry=geometry,
+        reference_temperature="55 degC", reference_diameter="80 um")
+    (tmp / "study.toml").write_text(text)
     (tmp / "runs.csv").write_text(RUNS)
     lines = ["run,time [min],concentration [mol/L]"]
     for rid in ("S1", "S2", "S3", "S4"):

@@ -6,7 +6,9 @@ parameters); chains here are short on purpose, so most are not converged. The sa
 is checked against analytic posteriors and by simulation-based calibration in
 tests/test_sampling.py; these tests check what the command writes and how it behaves. The
 results contract is DESIGN.md's "Results contract" (posterior.json: {name: {median, q05, q95,
-hdi94, rhat, ess}} and the sampler settings walkers, steps, burn-in, seed).
+hdi94, rhat, ess}} and the sampler settings walkers, steps, burn-in, seed). These are checks of
+kinfit's own contract and command-line behaviour; no outside source applies beyond those named in
+tests/test_sampling.py.
 """
 
 from __future__ import annotations

@@ -25,6 +25,8 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
+from bench_pellet import best_of  # noqa: E402
+
 from kinfit.model import Model, ModelSpec  # noqa: E402
 from kinfit.study import load_study  # noqa: E402
 
@@ -117,15 +119,6 @@ def write_study(folder: Path, *, m: int = 1, geometry: str = "sphere") -> Path:
     path = folder / "study.toml"
     path.write_text(STUDY.format(m=m, geometry=geometry))
     return path
-
-
-def best_of(fun, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fun()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def main() -> None:
