@@ -182,8 +182,8 @@ def write_study(folder: Path, study: str, runs: str, observations: str, *,
 
 def model_of(study: Any, spec: Callable[[Any], Any] | None = None) -> Any:
     """The kinfit Model of a loaded study (``ModelSpec.from_study`` unless ``spec`` is given,
-    e.g. ``kinfit.fitting.main_spec``)."""
-    from kinfit.model import Model, ModelSpec
+    e.g. ``kinfit.fitting.fit.main_spec``)."""
+    from kinfit.model.compiled import Model, ModelSpec
 
     return Model((spec or ModelSpec.from_study)(study), study)
 
@@ -191,7 +191,7 @@ def model_of(study: Any, spec: Callable[[Any], Any] | None = None) -> Any:
 def simulate(path: Path, spec: Callable[[Any], Any] | None = None
              ) -> tuple[Any, Any, np.ndarray]:
     """Load the study at ``path``; return (study, model, predictions at the study's values)."""
-    from kinfit.study import load_study
+    from kinfit.study.load import load_study
 
     study = load_study(path)
     model = model_of(study, spec)
@@ -228,7 +228,7 @@ def noisy_batch_campaign(folder: Path, truth_text: str, runs: Sequence[Sequence[
     ``sigma`` (mol/m^3, clipped at 0), written as ``truth.toml`` and ``observations.csv`` in
     ``folder``. ``runs`` rows are (run, T [degC], N [rpm], dp [um], w [g/L], C0 [mol/L]);
     every run is sampled at ``times_min``. Returns (study, model)."""
-    from kinfit.study import load_study
+    from kinfit.study.load import load_study
 
     obs = [(r[0], f"{t:g}", float(r[5]) * 1000) for r in runs for t in times_min]
     path = write_study(folder, truth_text, runs_csv(runs), profiles_csv(obs),

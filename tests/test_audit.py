@@ -20,17 +20,12 @@ import numpy as np
 import pytest
 from studies import noisy_batch_campaign, numbered, study_text
 
-from kinfit.audit import (
-    FILM_EA_LIMIT,
-    VERDICTS,
-    add_audit_arguments,
-    audit_claims,
-    load_claims,
-    run_audit_command,
-)
+from kinfit.analysis.audit.audit import FILM_EA_LIMIT, VERDICTS, add_audit_arguments, audit_claims, run_audit_command
+
+from kinfit.study.claims import load_claims
 from kinfit.errors import StudyError
-from kinfit.fitting import FitOptions, fit_model, main_spec
-from kinfit.model import ModelSpec
+from kinfit.fitting.fit import FitOptions, fit_model, main_spec
+from kinfit.model.compiled import ModelSpec
 
 
 def truth_study(k: float, Ea: float, n: float, De: float, kc: float, dp: float) -> str:
@@ -101,7 +96,7 @@ def test_film_limited_claim_is_transport_contaminated(tmp_path):
     # film control: Ca = 1 - Cs/Cb near 1 (Carberry 1976) and E_app near zero because the film
     # coefficient of the agitation law does not depend on temperature (common practice)
     study, model = campaign(tmp_path, FILM)
-    from kinfit.simulate import run_table
+    from kinfit.model.simulation import run_table
 
     truth_runs = run_table(model, model.x0)
     assert all(r["regime"] == "film" for r in truth_runs.values())  # the fixture's regime

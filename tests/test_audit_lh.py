@@ -26,11 +26,13 @@ import pytest
 from scipy import stats
 from studies import noisy_batch_campaign, numbered, study_text
 
-from kinfit.audit import FILM_EA_LIMIT, audit_claims, load_claims
+from kinfit.analysis.audit.audit import FILM_EA_LIMIT, audit_claims
+
+from kinfit.study.claims import load_claims
 from kinfit.errors import StudyError
-from kinfit.fitting import FitOptions, fit_model, main_spec
-from kinfit.kinetics import LangmuirHinshelwood
-from kinfit.model import ModelSpec
+from kinfit.fitting.fit import FitOptions, fit_model, main_spec
+from kinfit.physics.kinetics.base import LangmuirHinshelwood
+from kinfit.model.compiled import ModelSpec
 
 R = 8.314462618
 LH_NAMES = ["k_ref", "activation_energy", "adsorption_constant", "adsorption_enthalpy"]
@@ -396,8 +398,8 @@ def test_strong_pore_apparent_kinetics_match_the_pellet_model(m, beta):
     # test_lh_pellet.py) at a large modulus (Phi > 1000, eta Phi -> 1; Bischoff 1965), with
     # the apparent order d ln r_obs/d ln Cs and activation energy -R d ln r_obs/d(1/T) by
     # central differences; against audit_lh.strong_pore_apparent (derived)
-    from kinfit.audit_lh import strong_pore_apparent
-    from kinfit.transport.surface import PelletRate
+    from kinfit.analysis.audit.lh_signatures import strong_pore_apparent
+    from kinfit.physics.surface import PelletRate
 
     law = LangmuirHinshelwood(reference_temperature=330.0, m=m)
     p = {"k_ref": np.array(2.0), "activation_energy": np.array(7e4),
@@ -425,7 +427,7 @@ def test_strong_pore_apparent_limits():
     # zero order -> 1/2 and E -> Ea/2; m = 2 saturated: order -1 -> 0 and E -> (Ea - dH)/2
     # ((n + 1)/2 and (E + 0)/2 of the power-law limits, Weisz & Prater 1954); the series
     # below beta = 1e-4 joins the closed form
-    from kinfit.audit_lh import strong_pore_apparent
+    from kinfit.analysis.audit.lh_signatures import strong_pore_apparent
 
     for m in (1, 2):
         n0, E0 = strong_pore_apparent(6e4, 1.0, -2e4, m, 300.0, 1e-9, 300.0)
@@ -444,7 +446,7 @@ def test_strong_pore_apparent_limits():
 def test_pore_signatures_need_a_refit_that_pins_the_constants(tmp_path):
     # a transport-aware refit whose K is unknown (standard error far above the estimate) must
     # not feed the strong-pore signatures: they are reported as not informative
-    from kinfit.audit_lh import lh_signatures
+    from kinfit.analysis.audit.lh_signatures import lh_signatures
 
     path = tmp_path / "claim.toml"
     path.write_text(BAD)

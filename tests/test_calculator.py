@@ -9,14 +9,14 @@ import math
 
 import pytest
 
-from kinfit.calculator import (
+from kinfit.analysis.calculator import (
     add_criteria_arguments,
     criteria_from_measurement,
     format_criteria,
     run_criteria_command,
 )
 from kinfit.errors import StudyError
-from kinfit.transport.properties import make_fluid
+from kinfit.physics.properties import make_fluid
 
 
 def test_hand_calculation_sphere_first_order():

@@ -5,10 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from kinfit.criteria import Thresholds, compute_criteria, regime_label
-from kinfit.kinetics import PowerLaw
-from kinfit.transport.film import characteristic_length, external_area
-from kinfit.transport.surface import PelletRate, observed_rate, resistance_shares
+from kinfit.physics.criteria import Thresholds, compute_criteria, regime_label
+from kinfit.physics.kinetics.base import PowerLaw
+from kinfit.physics.film import characteristic_length, external_area
+from kinfit.physics.surface import PelletRate, observed_rate, resistance_shares
 
 LAW = PowerLaw(reference_temperature=330.0)
 

@@ -18,34 +18,34 @@ from scipy import stats
 from scipy.integrate import solve_ivp
 from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
 
-from kinfit.criteria import Thresholds
-from kinfit.diagnose.falsified import (
+from kinfit.physics.criteria import Thresholds
+from kinfit.analysis.diagnosis.falsified import (
     GAS_CONSTANT,
     arrhenius_regression,
     falsified_kinetics,
     power_law_profile,
 )
-from kinfit.diagnose.model_free import (
+from kinfit.analysis.diagnosis.model_free import (
     _fit_levels,
     compare_rates,
     extra_sum_of_squares,
     model_free_tests,
     spline_design,
 )
-from kinfit.diagnose.next_runs import next_runs
-from kinfit.diagnose.per_run import posterior_matrix
-from kinfit.diagnostics import (
+from kinfit.analysis.diagnosis.next_runs import next_runs
+from kinfit.analysis.diagnosis.per_run import posterior_matrix
+from kinfit.analysis.diagnosis.diagnosis import (
     add_diagnose_arguments,
     diagnose,
     model_for_fit,
     run_diagnose_command,
 )
 from kinfit.errors import StudyError
-from kinfit.fitting import FitOptions, fit
-from kinfit.model import Model, ModelSpec
-from kinfit.results import FitResult
-from kinfit.simulate import run_table
-from kinfit.study import comparison_sets, load_study
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.model.compiled import Model, ModelSpec
+from kinfit.fitting.results import FitResult
+from kinfit.model.simulation import run_table
+from kinfit.study.load import comparison_sets, load_study
 
 
 # ----------------------------------------------------------------------------- synthetic studies
@@ -173,7 +173,7 @@ def test_rate_comparison_without_replicates_is_not_possible(tmp_path):
 def test_profile_test_keeps_its_false_alarm_rate():
     # identical first-order profiles with noise: the F test must reject in about alpha of the
     # cases (the definition of a level-alpha test; binomial 99.9 % bound for 400 trials)
-    from kinfit.diagnose.model_free import _select_basis
+    from kinfit.analysis.diagnosis.model_free import _select_basis
 
     rng = np.random.default_rng(11)
     rejections = 0
@@ -317,7 +317,7 @@ def test_pore_campaign_speed_no_effect_size_effect(tmp_path):
     # pore-limited, film negligible (invented truth; needs the pellet module): stirrer speed
     # makes no difference, particle size does, the cross-reference names pore diffusion, and
     # the large particles are labelled 'pore'
-    pytest.importorskip("kinfit.transport.pellet")
+    pytest.importorskip("kinfit.physics.pellet.effectiveness")
     rows = _grid((55, 70), (300, 1200), (30, 300))
     study, truth = write_campaign(tmp_path, rows, kc_ref="1e-3 m/s", De="5e-11 m^2/s")
     model = Model(ModelSpec.from_study(study), study)

@@ -26,12 +26,8 @@ from kinfit.estimate.compare import compare_fits
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.problem import PENALTY, ErrorModel, Problem, Space
 from kinfit.estimate.statistics import fit_statistics, ml_error_scales
-from kinfit.estimate.uncertainty import (
-    bootstrap,
-    identifiability,
-    linearised_intervals,
-    profile_intervals,
-)
+from kinfit.estimate.uncertainty import bootstrap, linearised_intervals, profile_intervals
+from kinfit.estimate.identifiability import identifiability
 
 
 def free_space(names: tuple[str, ...]) -> Space:

@@ -1,4 +1,4 @@
-"""Denial and fuzz tests of the rate-expression compiler (:mod:`kinfit.expressions`).
+"""Denial and fuzz tests of the rate-expression compiler (:mod:`kinfit.physics.kinetics.expressions`).
 
 Three properties, each over Hypothesis-generated input:
 
@@ -34,7 +34,7 @@ from scipy.constants import R as GAS_CONSTANT
 from studies import alarm
 
 from kinfit.errors import StudyError
-from kinfit.expressions import (
+from kinfit.physics.kinetics.expressions import (
     FUNCTIONS,
     MAX_DEPTH,
     MAX_EXPONENT,
@@ -363,8 +363,8 @@ def test_worst_case_derivative_within_the_limits_is_bounded():
 
 def test_a_malicious_study_expression_is_refused_before_anything_runs(tmp_path):
     """Through the study file: [kinetics] rate_law = "expression" with a payload."""
-    from kinfit.model import ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model.compiled import ModelSpec
+    from kinfit.study.load import load_study
 
     target = tmp_path / "pwned"
     (tmp_path / "runs.csv").write_text(
@@ -381,8 +381,8 @@ def test_a_malicious_study_expression_is_refused_before_anything_runs(tmp_path):
         '[film]\nmodel = "none"\n[pellet]\ndiffusivity = "none"\n'
         '[parameters.k]\nvalue = 1.0\n', encoding="utf-8")
     study = load_study(tmp_path / "study.toml")
-    import kinfit.kinetics  # noqa: F401 - imported first: module imports raise 'exec' events
-    import kinfit.transport.film  # noqa: F401
+    import kinfit.physics.kinetics.base  # noqa: F401 - imported first: module imports raise 'exec' events
+    import kinfit.physics.film  # noqa: F401
     with audited() as events, pytest.raises(StudyError, match="rate expression"):
         ModelSpec.from_study(study)
     assert not target.exists()

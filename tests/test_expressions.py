@@ -10,8 +10,8 @@ import pytest
 from scipy.constants import R
 
 from kinfit.errors import StudyError
-from kinfit.expressions import MAX_DEPTH, MAX_LENGTH, compile_expression
-from kinfit.kinetics import PowerLaw
+from kinfit.physics.kinetics.expressions import MAX_DEPTH, MAX_LENGTH, compile_expression
+from kinfit.physics.kinetics.base import PowerLaw
 
 
 @pytest.fixture

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.transport.film import (
+from kinfit.physics.film import (
     CORRELATIONS,
     FILM_MODELS,
     GEOMETRIES,
@@ -25,7 +25,7 @@ from kinfit.transport.film import (
     sherwood_wakao_funazkri,
     specific_power,
 )
-from kinfit.transport.properties import make_fluid
+from kinfit.physics.properties import make_fluid
 
 # REFERENCES.md section 4 worked example: water at 25 degC with nu = 8.927e-7 m^2/s and
 # D_m = 1e-9 m^2/s (Sc = 892.7), dp = 50 um, Rushton N_p = 5, D = 0.05 m, V = 1 L, D/T = 0.45.
@@ -96,7 +96,7 @@ def test_slurry_stagnant_limit_is_two():
 
 def test_slurry_kc_rises_with_stirrer_speed_with_real_water():
     """k_c rises with stirrer speed (common practice); with water properties from
-    kinfit.transport.properties and Wilke-Chang diffusivity, Sh >= 2 everywhere."""
+    kinfit.physics.properties and Wilke-Chang diffusivity, Sh >= 2 everywhere."""
     water = make_fluid("water", solute_molar_volume=100e-6)
     film = SlurryFilm(fluid=water, **TANK)
     N = np.linspace(2.0, 30.0, 15)

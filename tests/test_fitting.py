@@ -10,10 +10,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from kinfit.cli import main
-from kinfit.fitting import FitOptions, fit
-from kinfit.results import FitResult
-from kinfit.study import load_study
+from kinfit.cli.parser import main
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.fitting.results import FitResult
+from kinfit.study.load import load_study
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "examples" / "demo"

@@ -30,10 +30,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from studies import Hang, alarm
 
-from kinfit.cli import main
+from kinfit.cli.parser import main
 from kinfit.errors import KinfitError, StudyError
-from kinfit.fitting import main_spec
-from kinfit.study import load_study
+from kinfit.fitting.fit import main_spec
+from kinfit.study.load import load_study
 
 #: wall-clock limit of one case, seconds (a loaded CI machine stays far below it)
 CASE_LIMIT = 20.0
@@ -399,7 +399,7 @@ def run_case(case: Case, *, limit: float = CASE_LIMIT) -> Outcome:
     A clean rejection is: ``load_study`` raises :class:`StudyError` (nothing else), and
     ``main(["check", path])`` returns 2 with exactly one line on stderr starting
     ``kinfit: error: `` and no traceback on either stream. A valid study must also build its
-    model (:class:`~kinfit.model.ModelSpec` and :class:`~kinfit.model.Model`) or be rejected
+    model (:class:`~kinfit.model.compiled.ModelSpec` and :class:`~kinfit.model.compiled.Model`) or be rejected
     there with a kinfit error.
     """
     with tempfile.TemporaryDirectory() as tmp:
@@ -435,7 +435,7 @@ def run_case(case: Case, *, limit: float = CASE_LIMIT) -> Outcome:
 
 
 def _build_model(study: Any) -> None:
-    from kinfit.model import Model, ModelSpec
+    from kinfit.model.compiled import Model, ModelSpec
 
     try:
         Model(ModelSpec.from_study(study), study)
@@ -532,8 +532,8 @@ def _unit(col: int, unit: str):
 
 
 #: inputs the fuzzer once turned into a traceback, a warning on stderr, a multi-line message or
-#: a silently accepted non-physical value, with the message now expected (kinfit.study,
-#: kinfit.units and kinfit.parameters were fixed for each)
+#: a silently accepted non-physical value, with the message now expected (kinfit.study.load,
+#: kinfit.core.units and kinfit.study.parameters were fixed for each)
 REGRESSIONS = {
     "csv text named .xlsx (BadZipFile)": (
         lambda: _xlsx(to_csv(RUN_HEADER, RUN_ROWS)), r"runs.xlsx: cannot read the workbook"),

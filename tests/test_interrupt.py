@@ -49,7 +49,7 @@ def test_interrupted_bootstrap_keeps_finished_replicates():
 def _result(values):
     import pandas as pd
 
-    from kinfit.results import FitResult
+    from kinfit.fitting.results import FitResult
 
     return FitResult(study="s", model={}, parameters={}, runs={}, correlation={},
                      fit={"converged": True, "n_obs": 2, "n_params": 1, "sse": 0.0,
@@ -65,7 +65,7 @@ def test_results_and_predictions_are_read_only_as_a_pair(tmp_path):
     import pytest
 
     from kinfit.errors import StudyError
-    from kinfit.results import FitResult
+    from kinfit.fitting.results import FitResult
 
     _result([1.0, 2.0]).save(tmp_path)
     back = FitResult.load(tmp_path)
@@ -73,7 +73,7 @@ def test_results_and_predictions_are_read_only_as_a_pair(tmp_path):
     saved = json.loads((tmp_path / "results.json").read_text())
     assert set(saved["manifest"]["outputs"]) == {"predictions.csv"}
     # a second run that stopped after writing predictions.csv but before results.json
-    from kinfit.outputs import write_frame_atomic
+    from kinfit.core.files import write_frame_atomic
 
     write_frame_atomic(tmp_path / "predictions.csv", _result([3.0, 4.0]).predictions)
     with pytest.raises(StudyError, match="does not belong to results.json"):

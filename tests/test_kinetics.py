@@ -8,19 +8,8 @@ import pytest
 from scipy.constants import R
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.kinetics import (
-    RATE_LAWS,
-    ExpressionRate,
-    Interval,
-    LangmuirHinshelwood,
-    PowerLaw,
-    ReversibleFirstOrder,
-    arrhenius,
-    decorrelating_reference_temperature,
-    make_rate_law,
-    pre_exponential_factor,
-    van_t_hoff,
-)
+from kinfit.physics.kinetics.base import RATE_LAWS, ExpressionRate, LangmuirHinshelwood, PowerLaw, ReversibleFirstOrder, arrhenius, decorrelating_reference_temperature, make_rate_law, pre_exponential_factor, van_t_hoff
+from kinfit.physics.families import Interval
 
 
 @pytest.fixture

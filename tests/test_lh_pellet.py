@@ -1,4 +1,4 @@
-"""Tabulated Langmuir-Hinshelwood effectiveness factor (kinfit/transport/_lh_table.py) and its
+"""Tabulated Langmuir-Hinshelwood effectiveness factor (kinfit/physics/pellet/_lh_table.py) and its
 use on the surface path and in the model.
 
 References: scipy's solve_bvp on the dimensionless LH pellet equations
@@ -20,12 +20,13 @@ from scipy.integrate import quad
 from studies import study_text
 
 from kinfit.errors import ModelError
-from kinfit.kinetics import LangmuirHinshelwood
-from kinfit.model import Model, ModelSpec
-from kinfit.study import load_study
-from kinfit.transport import _lh_table
-from kinfit.transport.pellet import eta_langmuir_hinshelwood, pellet_eta
-from kinfit.transport.surface import PelletRate
+from kinfit.physics.kinetics.base import LangmuirHinshelwood
+from kinfit.model.compiled import Model, ModelSpec
+from kinfit.study.load import load_study
+from kinfit.physics.pellet import _lh_table
+from kinfit.physics.pellet.effectiveness import pellet_eta
+from kinfit.physics.pellet._lh_table import eta_langmuir_hinshelwood
+from kinfit.physics.surface import PelletRate
 
 SHAPES = {"slab": 0, "cylinder": 1, "sphere": 2}
 CASES = [(m, g) for m in (1, 2) for g in SHAPES]

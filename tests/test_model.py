@@ -10,9 +10,9 @@ import pytest
 from studies import Raw, model_of, profiles_csv, runs_csv, study_text, write_study
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.model import Model
-from kinfit.study import load_study
-from kinfit.transport.pellet import eta_first_order
+from kinfit.model.compiled import Model
+from kinfit.study.load import load_study
+from kinfit.physics.pellet.effectiveness import eta_first_order
 
 #: the study's text with its order left as ``{order}`` (filled by :func:`make_model`)
 STUDY = study_text(

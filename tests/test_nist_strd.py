@@ -22,7 +22,9 @@ import numpy as np
 import pytest
 from nist import DATASETS, MODELS, NistDataset, load, lre, nist_dir
 
-from kinfit.estimate.least_squares import Estimate, fit_problem
+from kinfit.estimate.least_squares import fit_problem
+
+from kinfit.estimate.result import Estimate
 from kinfit.estimate.problem import Problem, Space
 
 FOLDER = nist_dir()

@@ -27,7 +27,7 @@ from studies import simulate, study_text
 from kinfit.errors import StudyError
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.uncertainty import bootstrap, profile_intervals
-from kinfit.parallel import (
+from kinfit.core.executors import (
     SerialExecutor,
     add_parallel_arguments,
     available_workers,
@@ -112,7 +112,7 @@ def write_campaign(
     Path
         The study file.
     """
-    from kinfit.model import Model
+    from kinfit.model.compiled import Model
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -197,8 +197,8 @@ def fragile_problem(problem, column: int, above: float):
 # ------------------------------------------------------------------------------------------
 @pytest.fixture(scope="module")
 def campaign(tmp_path_factory):
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model.compiled import Model, ModelSpec
+    from kinfit.study.load import load_study
 
     path = write_campaign(tmp_path_factory.mktemp("campaign"), n_runs=6, seed=11, samples=6)
     study = load_study(path)
@@ -268,7 +268,7 @@ def test_unreachable_scheduler_is_a_clean_study_error():
 
 
 def test_parallel_arguments_parse_and_exclude_each_other():
-    from kinfit.cli import _Parser
+    from kinfit.cli.parser import _Parser
 
     parser = add_parallel_arguments(_Parser(prog="kinfit fit"))
     assert parser.parse_args(["--workers", "3"]).workers == 3
@@ -379,7 +379,7 @@ def test_profile_is_identical_in_a_process_pool(campaign, pool):
 
 
 def test_candidate_models_fit_identically_in_a_process_pool(campaign, pool):
-    from kinfit.fitting import FitOptions, parse_candidate
+    from kinfit.fitting.fit import FitOptions, parse_candidate
 
     study, model, _, _ = campaign
     specs = [model.spec, parse_candidate("power/agitation/none", study)]

@@ -12,8 +12,9 @@ from pellet_reference import dead_core_reference, power_law_reference, reference
 from scipy.optimize import brentq
 
 from kinfit.errors import ModelError, SolverError, StudyError
-from kinfit.transport import _pellet_phase, _pellet_table
-from kinfit.transport.pellet import (
+from kinfit.physics.pellet import _phase as _pellet_phase
+from kinfit.physics.pellet import _power_table as _pellet_table
+from kinfit.physics.pellet.effectiveness import (
     GEOMETRIES,
     eta_first_order,
     eta_power_law,
@@ -426,8 +427,8 @@ def test_reversible_rate_law_takes_the_closed_form_on_the_surface_path():
     # the surface path uses eta_first_order at L sqrt(rho k (1 + 1/K)/(C_ref De)) (Aris 1975,
     # common practice); it must agree with the numerical pellet solver (pellet_eta, checked
     # above against the closed form and solve_bvp) at, above and below equilibrium
-    from kinfit.kinetics import make_rate_law
-    from kinfit.transport.surface import PelletRate
+    from kinfit.physics.kinetics.base import make_rate_law
+    from kinfit.physics.surface import PelletRate
 
     law = make_rate_law("reversible", reference_temperature=330.0,
                         reference_concentration=1000.0)

@@ -24,8 +24,8 @@ from studies import (
     write_study,
 )
 
-from kinfit.fitting import FitOptions, fit
-from kinfit.plan import (
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.analysis.plan import (
     _logdet,
     add_plan_arguments,
     d_optimal,
@@ -33,8 +33,8 @@ from kinfit.plan import (
     plan_runs,
     run_plan_command,
 )
-from kinfit.predict import load_fitted
-from kinfit.study import load_study
+from kinfit.study.conditions import load_fitted
+from kinfit.study.load import load_study
 
 STUDY = study_text(
     {"k_ref": "0.05 mol/(kg*s)", "activation_energy": "70 kJ/mol", "order": 1.0,
@@ -57,7 +57,7 @@ def fitted_campaign(tmp_path_factory):
     path = write_study(folder, STUDY, runs_csv(numbered(ROWS)),
                        profiles_csv([(f"R{i + 1}", f"{t:g}", 500) for i in range(len(ROWS))
                                      for t in times]))
-    from kinfit.fitting import main_spec
+    from kinfit.fitting.fit import main_spec
 
     _, model, y = simulate(path, main_spec)
     y = y + np.random.default_rng(4).normal(0.0, 3.0, y.size)
@@ -88,7 +88,7 @@ def _first_order(est, T, N, dp):
 
 def test_recommended_diameter_meets_weisz_prater(fitted_campaign, plan):
     # first order: Psi_L = eta phi_L^2 whatever the film does (Weisz & Prater 1954; Aris
-    # normalisation); limit 0.3 (L/R)^2 = 0.3/9 for a sphere (kinfit.criteria)
+    # normalisation); limit 0.3 (L/R)^2 = 0.3/9 for a sphere (kinfit.physics.criteria)
     _, study, res = fitted_campaign
     dp = plan.tests["recommended"]["particle_diameter"]
     assert dp is not None and 1e-6 < dp < 200e-6
@@ -172,7 +172,7 @@ def test_agitation_speeds_differ_beyond_noise(fitted_campaign, plan):
         if N is None:
             continue
         run = study.run(rid)
-        from kinfit.predict import Condition
+        from kinfit.study.conditions import Condition
 
         own = Condition("own", run.temperature, run.stirrer_speed, run.particle_diameter,
                         run.catalyst_loading, run.initial_concentration)

@@ -17,19 +17,10 @@ import pytest
 from studies import numbered, profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.errors import RegimeWarning, StudyError
-from kinfit.fitting import FitOptions, fit
-from kinfit.model import Model
-from kinfit.predict import (
-    ExtrapolationRefused,
-    add_predict_arguments,
-    conditions_study,
-    covariance_draws,
-    load_fitted,
-    parse_conditions,
-    parse_times,
-    predict_conditions,
-    run_predict_command,
-)
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.model.compiled import Model
+from kinfit.analysis.predict import ExtrapolationRefused, add_predict_arguments, predict_conditions, run_predict_command
+from kinfit.study.conditions import conditions_study, covariance_draws, load_fitted, parse_conditions, parse_times
 
 
 def synthetic(folder: Path, rows, *, kind: str = "profile", k: float = 0.05, n: float = 1.0,
@@ -52,7 +43,7 @@ def synthetic(folder: Path, rows, *, kind: str = "profile", k: float = 0.05, n: 
     else:
         obs = "run,rate [mol/(kg*s)]\n" + "".join(f"R{i + 1},0\n" for i in range(len(rows))
                                                   for _ in range(3))
-    from kinfit.fitting import main_spec
+    from kinfit.fitting.fit import main_spec
 
     study, model, y = simulate(write_study(folder, text, runs_csv(numbered(rows)), obs), main_spec)
     x_true = model.x0.copy()
@@ -233,7 +224,7 @@ def test_conditions_from_a_table(tmp_path):
     study, _, _ = synthetic(tmp_path, ROWS)
     (tmp_path / "at.csv").write_text("run,temperature [degC],stirrer_speed [rpm]\n"
                                      "A,55,500\nB,65,700\n")
-    from kinfit.predict import conditions_from_argument
+    from kinfit.study.conditions import conditions_from_argument
 
     conds = conditions_from_argument(str(tmp_path / "at.csv"), study)
     assert [c.id for c in conds] == ["A", "B"]

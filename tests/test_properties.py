@@ -12,7 +12,7 @@ from chemicals.iapws import iapws95_rho
 from chemicals.viscosity import Viswanath_Natarajan_3, mu_IAPWS
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.transport.properties import (
+from kinfit.physics.properties import (
     SOLVENTS,
     effective_diffusivity,
     make_fluid,

@@ -20,13 +20,12 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.linalg import expm
 
-from kinfit.estimate.least_squares import Estimate, fit_problem
+from kinfit.estimate.least_squares import fit_problem
+
+from kinfit.estimate.result import Estimate
 from kinfit.estimate.problem import Problem, Space
-from kinfit.estimate.uncertainty import (
-    identifiability,
-    linearised_intervals,
-    profile_intervals,
-)
+from kinfit.estimate.uncertainty import linearised_intervals, profile_intervals
+from kinfit.estimate.identifiability import identifiability
 
 # ------------------------------------------------------------------------------------------
 # alpha-pinene: linear first-order network, exact solution by matrix exponential

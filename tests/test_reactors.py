@@ -7,9 +7,9 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from kinfit.errors import SolverError
-from kinfit.kinetics import PowerLaw
-from kinfit.reactors import BatchGrid, batch_profiles, cstr_outlet, differential_rates
-from kinfit.transport.surface import PelletRate, observed_rate
+from kinfit.physics.kinetics.base import PowerLaw
+from kinfit.physics.reactors import BatchGrid, batch_profiles, cstr_outlet, differential_rates
+from kinfit.physics.surface import PelletRate, observed_rate
 
 
 def _film_power_rate(k, n, kfa, T=330.0):

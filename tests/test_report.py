@@ -76,9 +76,9 @@ def make_study(folder: Path) -> Path:
 def write_posterior_files(study_path: Path, fit_dir: Path, *, seed: int = 5) -> None:
     """posterior.json, posterior_draws.csv and posterior_bands.csv in the sampler's shapes,
     from normal draws of the fit's linearised covariance (synthetic test input)."""
-    from kinfit.model import Model, ModelSpec
-    from kinfit.results import FitResult
-    from kinfit.study import load_study
+    from kinfit.model.compiled import Model, ModelSpec
+    from kinfit.fitting.results import FitResult
+    from kinfit.study.load import load_study
 
     res = FitResult.load(fit_dir)
     names = list(res.correlation["names"])
@@ -154,8 +154,8 @@ def fitted(tmp_path_factory):
     """The synthetic study fitted once (no profile, a small bootstrap) and saved."""
     from dataclasses import replace
 
-    from kinfit.fitting import FitOptions, comparison_rows, fit, parse_candidate
-    from kinfit.study import load_study
+    from kinfit.fitting.fit import FitOptions, comparison_rows, fit, parse_candidate
+    from kinfit.study.load import load_study
 
     folder = tmp_path_factory.mktemp("campaign")
     path = make_study(folder)
@@ -163,8 +163,8 @@ def fitted(tmp_path_factory):
     result = fit(study, FitOptions(profile=False, bootstrap=8, seed=3),
                  argv=["kinfit", "fit", str(path), "--out", "fit", "--no-profile"])
     # a nested candidate with the agitation exponent fixed, for the comparison table
-    from kinfit.fitting import fit_model
-    from kinfit.parameters import ParameterTable
+    from kinfit.fitting.fit import fit_model
+    from kinfit.study.parameters import ParameterTable
 
     cand = parse_candidate("power/agitation/none", study)
     table = ParameterTable([replace(p, value=0.0, vary=False) if n == "agitation_exponent"
@@ -188,7 +188,7 @@ def fitted(tmp_path_factory):
 def _block_fitting(mp: pytest.MonkeyPatch) -> None:
     """Make every fitting entry point raise: the report must read results only."""
     import kinfit.estimate.least_squares as ls
-    import kinfit.fitting as fitting
+    import kinfit.fitting.fit as fitting
 
     def boom(*args, **kwargs):
         raise AssertionError("the report called a fitting function")
@@ -203,7 +203,7 @@ def _block_fitting(mp: pytest.MonkeyPatch) -> None:
 def plain_report(fitted, tmp_path_factory):
     """The report of the saved fit alone (no posterior, no diagnosis), built with every
     fitting function made to raise, and the bytes of what it wrote."""
-    from kinfit.report import build_report
+    from kinfit.report.command import build_report
 
     path, fit_dir = fitted
     out = tmp_path_factory.mktemp("plain") / "out"
@@ -216,7 +216,7 @@ def plain_report(fitted, tmp_path_factory):
 @pytest.fixture(scope="module")
 def full_report(fitted, tmp_path_factory):
     """A report with the posterior and diagnosis files present."""
-    from kinfit.report import build_report
+    from kinfit.report.command import build_report
 
     path, fit_dir = fitted
     folder = tmp_path_factory.mktemp("full")
@@ -328,7 +328,7 @@ def test_sections_follow_the_data(full_report):
 
 
 def test_csv_tables_carry_the_saved_numbers(fitted, full_report):
-    from kinfit.results import FitResult
+    from kinfit.fitting.results import FitResult
 
     res = FitResult.load(fitted[1])
     params = pd.read_csv(full_report.out_dir / "parameters.csv").set_index("parameter")
@@ -483,7 +483,7 @@ def test_regime_map_is_the_same_in_every_process():
 
 
 def test_same_results_give_the_same_report(fitted, plain_report):
-    from kinfit.report import build_report
+    from kinfit.report.command import build_report
 
     path, fit_dir = fitted
     first, files = plain_report
@@ -495,7 +495,7 @@ def test_same_results_give_the_same_report(fitted, plain_report):
 
 
 def test_wrong_study_or_missing_results(fitted, tmp_path):
-    from kinfit.report import build_report
+    from kinfit.report.command import build_report
 
     path, fit_dir = fitted
     with pytest.raises(StudyError, match="no results at .*kinfit fit"):
@@ -520,7 +520,7 @@ def test_wrong_study_or_missing_results(fitted, tmp_path):
 def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     """The command line hooks (default --fit = --out), on a study whose data changed after
     the fit: the report says so, in the summary and beside the digests."""
-    from kinfit.report import add_report_arguments, run_report_command
+    from kinfit.report.command import add_report_arguments, run_report_command
 
     path, fit_dir = fitted
     copy = tmp_path / "campaign"

@@ -26,7 +26,7 @@ import pytest
 from test_parallel import fragile_problem, write_campaign
 
 import kinfit.estimate.least_squares as lsq
-import kinfit.outputs as outputs
+import kinfit.core.files as outputs
 from kinfit.errors import SolverError, StudyError
 from kinfit.estimate.checkpoint import atomic_write
 from kinfit.estimate.least_squares import fit_problem
@@ -36,8 +36,8 @@ from kinfit.estimate.uncertainty import bootstrap, profile_intervals
 
 @pytest.fixture(scope="module")
 def campaign(tmp_path_factory):
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model.compiled import Model, ModelSpec
+    from kinfit.study.load import load_study
 
     folder = tmp_path_factory.mktemp("robust")
     path = write_campaign(folder, n_runs=6, seed=23, samples=6)
@@ -239,7 +239,7 @@ def test_interrupted_bootstrap_keeps_earlier_results_and_exits_130(campaign, tmp
     130 with a message saying so, results.json replaced whole by the fit with the 4 finished
     replicates recorded, no temporary file left."""
     import kinfit.estimate.uncertainty as unc
-    from kinfit.cli import main
+    from kinfit.cli.parser import main
 
     path = campaign[0]
     out = tmp_path / "out"
@@ -270,8 +270,8 @@ def test_interrupted_bootstrap_keeps_earlier_results_and_exits_130(campaign, tmp
 
 def test_results_and_predictions_are_written_whole(campaign, tmp_path):
     """A finished fit writes results.json and predictions.csv whole (each atomically)."""
-    from kinfit.fitting import FitOptions, fit
-    from kinfit.results import FitResult
+    from kinfit.fitting.fit import FitOptions, fit
+    from kinfit.fitting.results import FitResult
 
     _, study, _, _, _ = campaign
     result = fit(study, FitOptions(profile=False))

@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kinfit.cli import main
-from kinfit.fitting import FitOptions, fit
-from kinfit.study import load_study
+from kinfit.cli.parser import main
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.study.load import load_study
 
 pytestmark = pytest.mark.filterwarnings("ignore::kinfit.errors.ConvergenceWarning")
 

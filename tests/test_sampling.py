@@ -32,7 +32,8 @@ from kinfit.estimate import convergence as cv
 from kinfit.estimate.checkpoint import load_checkpoint
 from kinfit.estimate.priors import Prior, from_spec, prior_table
 from kinfit.estimate.problem import ErrorModel, Problem, Space
-from kinfit.estimate.sampling import LogPosterior, sample_problem
+from kinfit.estimate.sampling import sample_problem
+from kinfit.estimate.log_posterior import LogPosterior
 
 
 # -- helpers ---------------------------------------------------------------------------------

@@ -12,10 +12,10 @@ import pytest
 import studies
 from studies import runs_csv, study_text
 
-from kinfit.cli import main
+from kinfit.cli.parser import main
 from kinfit.errors import StudyError
-from kinfit.study import comparison_sets, load_study
-from kinfit.units import parse_quantity, to_si
+from kinfit.study.load import comparison_sets, load_study
+from kinfit.core.units import parse_quantity, to_si
 
 STUDY = study_text(
     {"k_ref": "0.05 mol/(kg*s)", "activation_energy": "60 kJ/mol", "order": 1.0,

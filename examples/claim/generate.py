@@ -26,9 +26,9 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.fitting import FitOptions, fit_model, main_spec
-from kinfit.model import Model, ModelSpec
-from kinfit.study import load_study
+from kinfit.fitting.fit import FitOptions, fit_model, main_spec
+from kinfit.model.compiled import Model, ModelSpec
+from kinfit.study.load import load_study
 
 HERE = Path(__file__).resolve().parent
 SEED = 20250611

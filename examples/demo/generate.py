@@ -66,8 +66,8 @@ def _write_observations(runs: pd.DataFrame, times_min: dict[str, np.ndarray],
 
 
 def main() -> None:
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model.compiled import Model, ModelSpec
+    from kinfit.study.load import load_study
 
     runs = _write_runs()
     # provisional sampling plan on a long horizon, to find each run's duration

@@ -71,7 +71,7 @@ def atomic_write(
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    from kinfit.outputs import atomic_path
+    from kinfit.core.files import atomic_path
 
     mode = "w" if text else "wb"
     kwargs: dict[str, Any] = {"encoding": "utf-8", "newline": ""} if text else {}

@@ -1,6 +1,6 @@
 """Numerical identifiability of a least-squares estimate, with no interpretation attached: large
 correlations, the condition number and weakest direction of the information matrix, parameters
-at a bound or unmoved. The chemistry layer (:mod:`kinfit.identifiability`) turns these flags
+at a bound or unmoved. The chemistry layer (:mod:`kinfit.fitting.identifiability`) turns these flags
 into the trade's words."""
 
 from __future__ import annotations

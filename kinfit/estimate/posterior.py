@@ -466,7 +466,7 @@ def _atomic_path(path: str | os.PathLike[str]) -> Iterator[str]:
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    from kinfit.outputs import atomic_path
+    from kinfit.core.files import atomic_path
 
     with atomic_path(dest) as tmp:
         yield str(tmp)

@@ -33,13 +33,9 @@ from kinfit.estimate.identifiability import (  # noqa: F401 - identifiability re
     _to_dict,
     identifiability,
 )
-from kinfit.estimate.least_squares import (
-    Estimate,
-    Evaluator,
-    SolverSettings,
-    fit_problem,
-    solve_weighted,
-)
+from kinfit.estimate.least_squares import SolverSettings, fit_problem, solve_weighted
+from kinfit.estimate.result import Estimate
+from kinfit.estimate.evaluation import Evaluator
 from kinfit.estimate.problem import Problem
 
 __all__ = [

@@ -16,8 +16,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from kinfit.campaign import TEST_MEANING
-from kinfit.criteria import REGIMES
+from kinfit.study.campaign import TEST_MEANING
+from kinfit.physics.criteria import REGIMES
 from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,
@@ -41,7 +41,7 @@ from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
 from kinfit.report.transport_sections import posterior_section, transport_section
-from kinfit.study import FACTORS, comparison_sets
+from kinfit.study.load import FACTORS, comparison_sets
 
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
 

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # the heavy modules load when a report is built, not when the CLI starts
     from kinfit.report.content import Report
-    from kinfit.study import Study
+    from kinfit.study.load import Study
 
 __all__ = ["ReportResult", "build_report", "add_report_arguments", "run_report_command"]
 
@@ -93,7 +93,7 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
     --------
     >>> build_report("examples/demo/study.toml", "reports/demo", "reports/demo")  # doctest: +SKIP
     """
-    from kinfit.outputs import (
+    from kinfit.core.files import (
         manifest,
         prepare_out_dir,
         write_bytes_atomic,

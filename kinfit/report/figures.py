@@ -188,12 +188,12 @@ def eta_first_order(phi: Array, geometry: str) -> Array:
 def eta_curve(phi: Array, order: float, geometry: str) -> tuple[Array, str]:
     """eta(Phi) for a power law of ``order`` in ``geometry``, and where it came from.
 
-    Uses :func:`kinfit.transport.pellet.eta_power_law` (the fitted model's own pellet solution)
+    Uses :func:`kinfit.physics.pellet.effectiveness.eta_power_law` (the fitted model's own pellet solution)
     when that module is available, else the first-order closed form (exact for order 1, an
     approximation in the generalised modulus otherwise).
     """
     try:
-        from kinfit.transport.pellet import eta_power_law
+        from kinfit.physics.pellet.effectiveness import eta_power_law
 
         eta = np.asarray(eta_power_law(np.asarray(phi, dtype=float),
                                        np.full(np.shape(phi), float(order)), geometry),

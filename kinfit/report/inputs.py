@@ -21,8 +21,8 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.errors import KinfitError, StudyError
-from kinfit.results import FitResult
-from kinfit.study import Study, load_study
+from kinfit.fitting.results import FitResult
+from kinfit.study.load import Study, load_study
 
 __all__ = ["ReportInputs", "load_inputs", "OPTIONAL_FILES", "file_sha256"]
 
@@ -145,7 +145,7 @@ def _observation_frame(result: FitResult) -> pd.DataFrame:
 def _rebuild_spec(study: Study, result: FitResult):
     """The fitted model's spec from the study, the choices in results.json and the saved
     values of the fixed parameters."""
-    from kinfit.model import ERROR_SCALE_NAMES, ModelSpec
+    from kinfit.model.compiled import ERROR_SCALE_NAMES, ModelSpec
 
     m = result.model
     choice: dict[str, Any] = {"rate_law": m.get("rate_law"), "film": m.get("film"),
@@ -163,7 +163,7 @@ def _rebuild_spec(study: Study, result: FitResult):
 
 def _curves(study: Study, result: FitResult, obs: pd.DataFrame):
     """Smooth profiles at the estimates, and the check against the saved fitted values."""
-    from kinfit.model import Model
+    from kinfit.model.compiled import Model
 
     spec = _rebuild_spec(study, result)
     model = Model(spec, study)

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from kinfit.criteria import REGIMES, THRESHOLD_SOURCES
+from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES
 from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,

@@ -38,9 +38,9 @@ sys.path.insert(0, str(ROOT))
 from kinfit.errors import ConvergenceWarning  # noqa: E402
 from kinfit.estimate.least_squares import fit_problem  # noqa: E402
 from kinfit.estimate.sampling import sample_problem  # noqa: E402
-from kinfit.fitting import main_spec  # noqa: E402
-from kinfit.model import Model, ModelSpec  # noqa: E402
-from kinfit.study import load_study  # noqa: E402
+from kinfit.fitting.fit import main_spec  # noqa: E402
+from kinfit.model.compiled import Model, ModelSpec  # noqa: E402
+from kinfit.study.load import load_study  # noqa: E402
 
 SIGMA = 4.0  # mol/m^3, as in examples/demo/generate.py
 LEVEL = 0.90

@@ -2,7 +2,7 @@
 
 The cases come from the Hypothesis strategies of ``tests/test_fuzz.py`` (TOML edits, table
 edits, whole-file damage), generated without shrinking. Each case runs ``load_study``, then
-``kinfit check`` (``kinfit.cli.main``), and for a valid study builds its model, under a
+``kinfit check`` (``kinfit.cli.parser.main``), and for a valid study builds its model, under a
 wall-clock alarm. Outcomes: ``ok`` (still a valid study), ``study_error`` (clean rejection: exit
 code 2, one line ``kinfit: error: ...``), ``traceback`` (anything else) and ``hang`` (the alarm
 fired).

@@ -27,8 +27,8 @@ sys.path.insert(0, str(ROOT))
 
 from bench_pellet import best_of  # noqa: E402
 
-from kinfit.model import Model, ModelSpec  # noqa: E402
-from kinfit.study import load_study  # noqa: E402
+from kinfit.model.compiled import Model, ModelSpec  # noqa: E402
+from kinfit.study.load import load_study  # noqa: E402
 
 __all__ = ["main", "write_study"]
 

@@ -21,8 +21,8 @@ from scipy.optimize import brentq
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from kinfit.model import Model, ModelSpec  # noqa: E402
-from kinfit.study import load_study  # noqa: E402
+from kinfit.model.compiled import Model, ModelSpec  # noqa: E402
+from kinfit.study.load import load_study  # noqa: E402
 
 
 class NaivePellet:

@@ -17,9 +17,9 @@ sys.path.insert(0, str(ROOT))
 
 from kinfit.estimate.least_squares import fit_problem  # noqa: E402
 from kinfit.estimate.sampling import sample_problem  # noqa: E402
-from kinfit.fitting import main_spec  # noqa: E402
-from kinfit.model import Model  # noqa: E402
-from kinfit.study import load_study  # noqa: E402
+from kinfit.fitting.fit import main_spec  # noqa: E402
+from kinfit.model.compiled import Model  # noqa: E402
+from kinfit.study.load import load_study  # noqa: E402
 
 WALKERS, STEPS = 32, 5000
 

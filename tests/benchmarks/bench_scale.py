@@ -10,7 +10,7 @@ scales with worker processes.
    is the least-squares slope of ln(time) against ln(runs); the same slope of the time per
    predictor evaluation is printed beside it.
 2. Bootstrap throughput (residual bootstrap, ``N_BOOT`` replicates of the 24-run campaign) with
-   1 worker (no pool) and with 2 worker processes (``kinfit.parallel.make_executor``); the pool
+   1 worker (no pool) and with 2 worker processes (``kinfit.core.executors.make_executor``); the pool
    is started and warmed before timing. The replicates must be identical in both.
 
 Run from the repository root:  python3 tests/benchmarks/bench_scale.py
@@ -43,8 +43,8 @@ ALL = ("k_ref", "activation_energy", "order", "effective_diffusivity", "kc_ref",
 def _problem(folder: Path, n_runs: int):
     from test_parallel import write_campaign
 
-    from kinfit.model import Model, ModelSpec
-    from kinfit.study import load_study
+    from kinfit.model.compiled import Model, ModelSpec
+    from kinfit.study.load import load_study
 
     path = write_campaign(folder, n_runs=n_runs, seed=1000 + n_runs, samples=8, vary=ALL)
     study = load_study(path)
@@ -108,7 +108,7 @@ def fit_scaling(tmp: Path) -> tuple[float, float]:
 def bootstrap_scaling(tmp: Path) -> float:
     from kinfit.estimate.least_squares import fit_problem
     from kinfit.estimate.uncertainty import bootstrap
-    from kinfit.parallel import make_executor
+    from kinfit.core.executors import make_executor
 
     model, problem = _problem(tmp / "boot", 24)
     model.predict(problem.x0[None, :])
@@ -165,7 +165,7 @@ def _warm(problem) -> float:
 
 
 def main() -> None:
-    from kinfit.parallel import available_workers
+    from kinfit.core.executors import available_workers
 
     load = os.getloadavg() if hasattr(os, "getloadavg") else (float("nan"),) * 3
     print(f"CPUs available: {available_workers()}; load average {load[0]:.2f} {load[1]:.2f} "

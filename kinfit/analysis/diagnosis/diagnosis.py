@@ -1,0 +1,526 @@
+"""The transport diagnosis of a campaign, run by run: what the data prove without a model, what
+the fitted model says of each run, whether the campaign's kinetics are falsified by transport,
+and which stirrer speed and particle size would make the runs intrinsic.
+
+:func:`diagnose` assembles the parts in :mod:`kinfit.analysis.diagnosis` into one frozen
+:class:`Diagnosis`, whose :meth:`Diagnosis.to_dict` is diagnosis.json field for field and whose
+:meth:`Diagnosis.report` is the console text of ``kinfit diagnose``.
+"""
+
+from __future__ import annotations
+
+import argparse
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
+from kinfit.analysis.diagnosis.falsified import FalsifiedResult, falsified_kinetics
+from kinfit.analysis.diagnosis.model_free import FactorTest, NotPossible, model_free_tests
+from kinfit.analysis.diagnosis.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next_runs
+from kinfit.analysis.diagnosis.per_run import N_DRAWS, posterior_matrix, run_diagnostics
+from kinfit.errors import StudyError
+from kinfit.model.compiled import Model
+from kinfit.fitting.results import FitResult
+from kinfit.study.load import Study
+
+__all__ = ["Diagnosis", "diagnose", "model_for_fit", "read_draws", "add_diagnose_arguments",
+           "run_diagnose_command", "DIAGNOSIS_VERSION", "SOURCES", "DRAWS_FILE"]
+
+Array = NDArray[np.float64]
+DIAGNOSIS_VERSION = 1
+#: the posterior draws table that ``kinfit sample`` writes into the fit folder
+DRAWS_FILE = "posterior_draws.csv"
+
+#: where each part of the diagnosis comes from
+SOURCES = {
+    **THRESHOLD_SOURCES,
+    "model_free_profiles": "extra-sum-of-squares F test of nested least-squares fits, one "
+                           "smooth curve against one per level (Bates & Watts 1988; Draper & "
+                           "Smith 1998); cubic regression spline chosen by BIC (Schwarz 1978)",
+    "model_free_rates": "one-way analysis of variance (Fisher 1925)",
+    "model_free_logic": "no change with stirrer speed: film negligible, says nothing of eta; "
+                        "no change with particle size at fixed speed: film negligible and "
+                        "eta = 1 (common practice)",
+    "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
+                 "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
+                 "apparent first order",
+    "regime": "resistances in series at the run's initial conditions: film 1/(kc a_m), "
+              "reaction 1/k1, pore (1/eta - 1)/k1; the share above one half names the regime "
+              "(kinfit results contract)",
+    "next_runs": "root find over stirrer speed and particle diameter with the fitted film law "
+                 "and pellet model for Ca < 0.05/|n| and Psi below its limit",
+    "carberry_times_order": THRESHOLD_SOURCES["carberry"],
+    "weisz_prater_radius": THRESHOLD_SOURCES["weisz_prater"],
+    "alpha": "significance level of the model-free tests (0.05, common practice)",
+}
+
+_UNITS = {
+    "thiele_modulus": "-", "effectiveness_factor": "-", "weisz_prater": "-", "mears": "-",
+    "carberry": "-", "observed_rate": "mol/(kg*s)", "surface_concentration": "mol/m^3",
+    "kc": "m/s", "temperature": "K", "stirrer_speed": "1/s (revolutions per second)",
+    "particle_diameter": "m", "catalyst_loading": "kg/m^3", "initial_concentration": "mol/m^3",
+    "activation_energy": "J/mol", "k_apparent": "mol/(kg*s) at the reference concentration",
+}
+
+
+@dataclass(frozen=True)
+class Diagnosis:
+    """The transport diagnosis of one study (read, never re-run).
+
+    Attributes
+    ----------
+    study : str
+        Study name.
+    model_free : tuple of FactorTest
+        Tests of runs that differ only in stirrer speed, particle size or loading.
+    not_possible : tuple of NotPossible
+        Tests the data cannot support, and the runs that would make them possible.
+    runs : dict
+        run id -> model-based criteria (see :class:`kinfit.analysis.diagnosis.per_run.PerRunResult`).
+    intrinsic_runs : tuple of str
+        Runs that qualify as intrinsic kinetic data under ``thresholds``.
+    falsified : FalsifiedResult
+        Apparent against intrinsic activation energy and order.
+    next_runs : tuple of NextRun
+        Per temperature, the speed and size that would make the runs intrinsic.
+    thresholds : dict
+        The limits used (numbers) and the settings they come from.
+    sources : dict
+        Where each criterion, threshold and test comes from.
+    model : dict
+        The model and fit the model-based part rests on.
+    notes : tuple of str
+        Caveats (assumptions of the model, study changed since the fit...).
+    alpha : float
+        Significance level of the model-free tests.
+    """
+
+    study: str
+    model_free: tuple[FactorTest, ...]
+    not_possible: tuple[NotPossible, ...]
+    runs: Mapping[str, Mapping[str, Any]]
+    intrinsic_runs: tuple[str, ...]
+    falsified: FalsifiedResult
+    next_runs: tuple[NextRun, ...]
+    thresholds: Mapping[str, Any]
+    sources: Mapping[str, str]
+    model: Mapping[str, Any] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+    alpha: float = 0.05
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-Python content of diagnosis.json (SI values; ``units`` names them)."""
+        from kinfit.core.files import to_plain
+
+        return to_plain({
+            "kinfit_diagnosis": DIAGNOSIS_VERSION,
+            "study": self.study,
+            "model_free": [t.to_dict() for t in self.model_free],
+            "not_possible": [n.to_dict() for n in self.not_possible],
+            "runs": self.runs,
+            "intrinsic_runs": list(self.intrinsic_runs),
+            "falsified": self.falsified.to_dict(),
+            "next_runs": [n.to_dict() for n in self.next_runs],
+            "thresholds": self.thresholds,
+            "sources": self.sources,
+            "model": self.model,
+            "notes": list(self.notes),
+            "alpha": self.alpha,
+            "units": _UNITS,
+        })
+
+    def save(self, folder: str | Path) -> Path:
+        """Write ``folder/diagnosis.json`` atomically; returns its path."""
+        from kinfit.core.files import prepare_out_dir, write_json_atomic
+
+        return write_json_atomic(prepare_out_dir(folder) / "diagnosis.json", self.to_dict())
+
+    # ------------------------------------------------------------------ text
+    def report(self) -> str:
+        """Console text: model-free tests, per-run criteria, falsified kinetics, next runs."""
+        lines = [f"transport diagnosis of study '{self.study}'", ""]
+        lines.append(f"1. from the data alone (model-free tests, alpha = {self.alpha:g})")
+        if not self.model_free:
+            lines.append("   no set of runs differs in only one transport factor")
+        for t in self.model_free:
+            lines.append(f"   - {t.conclusion}")
+            lines.append(f"     [{t.test}; F = {t.statistic:.3g} on {t.df[0]}, {t.df[1]} df; "
+                         f"runs {', '.join(t.runs)}]")
+        for miss in self.not_possible:
+            lines.append(f"   - not possible ({miss.factor}): {miss.message}")
+        lines.append("")
+        label = self.model.get("label", "")
+        lines.append(f"2. per run, from the fitted model ({label}; "
+                     f"{'converged' if self.model.get('converged') else 'NOT converged'})")
+        has_post = any("regime_probability" in r for r in self.runs.values())
+        head = (f"   {'run':<10}{'regime':<9}{'eta':>8}{'Thiele':>9}{'W-P':>10}{'Carberry':>10}"
+                f"{'Mears':>9}{'film':>7}{'pore':>7}{'react':>7}  intrinsic")
+        lines.append(head + ("  P(regime)" if has_post else ""))
+        for rid, r in self.runs.items():
+            s = r["shares"]
+            row = (f"   {rid:<10}{r['regime']:<9}{r['effectiveness_factor']:>8.3f}"
+                   f"{r['thiele_modulus']:>9.3g}{r['weisz_prater']:>10.3g}{r['carberry']:>10.3g}"
+                   f"{r['mears']:>9.3g}{100 * s['film']:>6.0f}%{100 * s['pore']:>6.0f}%"
+                   f"{100 * s['reaction']:>6.0f}%  {'yes' if r['intrinsic'] else 'no':<9}")
+            if has_post and "regime_probability" in r:
+                pr = r["regime_probability"]
+                row += "  " + ", ".join(f"{g} {pr[g]:.2f}" for g in REGIMES if pr.get(g, 0) > 0)
+            lines.append(row)
+        if has_post:
+            lines.append(f"   90 % intervals from {self.model.get('n_draws', 0)} posterior draws "
+                         "are in diagnosis.json (runs.*.intervals)")
+        th = self.thresholds
+        lines.append(f"   thresholds: Carberry < {th['carberry']:.3g} (0.05/|n|), Weisz-Prater "
+                     f"< {th['weisz_prater']:.3g} (Psi_R < {th['weisz_prater_radius']:g} in the "
+                     f"L = Vp/Sp form), Mears < {th['mears']:g}, eta >= "
+                     f"{th['effectiveness_factor']:g}")
+        lines.append("   intrinsic runs: " + (", ".join(self.intrinsic_runs) if self.intrinsic_runs
+                                              else "none"))
+        lines.append("")
+        lines.append("3. falsified kinetics (power law with no transport, per speed and size)")
+        f = self.falsified
+        if f.intrinsic_activation_energy is not None:
+            order = "" if f.intrinsic_order is None else f", order {f.intrinsic_order:.3g}"
+            lines.append(f"   intrinsic: activation energy "
+                         f"{f.intrinsic_activation_energy / 1e3:.4g} kJ/mol{order}")
+        for g in f.groups:
+            a = g.arrhenius
+            ci = "" if a.ci95 is None else f" [{a.ci95[0] / 1e3:.3g}, {a.ci95[1] / 1e3:.3g}]"
+            order = ("not identified" if g.apparent_order is None
+                     else f"{g.apparent_order:.3g}")
+            lines.append(f"   {g.stirrer_speed * 60:.4g} rpm, {g.particle_diameter * 1e6:.4g} um:"
+                         f" E_app {a.activation_energy / 1e3:.4g} kJ/mol{ci}, apparent order "
+                         f"{order} ({len(g.per_temperature)} temperatures)")
+        for s in f.summary:
+            lines.append(f"   - {s}")
+        for w in f.warnings:
+            lines.append(f"   ! {w}")
+        lines.append("")
+        lines.append("4. next runs (per temperature: speed and size for intrinsic data)")
+        for rec in self.next_runs:
+            sp = "any" if rec.stirrer_speed is None else f">= {rec.stirrer_speed * 60:.4g} rpm"
+            dp = "none found" if rec.particle_diameter is None else (
+                f"<= {rec.particle_diameter * 1e6:.4g} um")
+            lines.append(f"   {rec.temperature:.5g} K: stirrer speed {sp}, particles {dp}")
+            lines.append(f"     {rec.note}")
+        if self.notes:
+            lines.append("")
+            lines.append("notes:")
+            lines.extend(f"   - {note}" for note in self.notes)
+        return "\n".join(lines)
+
+
+# ----------------------------------------------------------------------------- orchestration
+def model_for_fit(study: Study, fit_result: FitResult) -> tuple[Model, Array]:
+    """The study's model and the fitted values of its varying columns.
+
+    Parameters
+    ----------
+    study : Study
+    fit_result : FitResult
+        A fit of the study's own model (``estimates()`` gives column -> value).
+
+    Returns
+    -------
+    model : Model
+    theta : ndarray, shape (p,)
+        Fitted values in the order of ``model.columns``.
+
+    Raises
+    ------
+    StudyError
+        When the fit lacks a varying parameter of the study's model (a fit of another model
+        or of an edited study).
+    """
+    from kinfit.fitting.fit import main_spec
+
+    model = Model(main_spec(study), study)
+    est = fit_result.estimates()
+    missing = [c for c in model.columns if c not in est]
+    if missing:
+        raise StudyError(
+            f"the fit results have no estimate of '{missing[0]}', which the study's model "
+            f"varies; they hold {sorted(est)}; refit with 'kinfit fit {study.path}'"
+        )
+    return model, np.array([est[c] for c in model.columns], dtype=float)
+
+
+def _intrinsic(fit_result: FitResult, runs: Mapping[str, Mapping[str, Any]]
+               ) -> tuple[float | None, float | None, float | None]:
+    p = fit_result.parameters
+    E = E_se = n = None
+    if "activation_energy" in p:
+        E = float(p["activation_energy"]["estimate"])
+        se = p["activation_energy"].get("stderr")
+        E_se = None if se is None else float(se)
+    if "order" in p:
+        n = float(p["order"]["estimate"])
+    elif runs:
+        n = float(np.median([r["order"] for r in runs.values()]))
+    return E, E_se, n
+
+
+def _threshold_block(thresholds: Thresholds, limits: Mapping[str, float], alpha: float,
+                     geometry: str) -> dict[str, Any]:
+    return {
+        **limits,
+        "carberry_times_order": thresholds.carberry,
+        "weisz_prater_radius": thresholds.weisz_prater_radius,
+        "geometry": geometry,
+        "alpha": alpha,
+        "note": "carberry = carberry_times_order/|n| for the campaign's median order; "
+                "weisz_prater is the limit in the L = Vp/Sp normalisation, "
+                "weisz_prater_radius (L/R)^2 with R = dp/2",
+    }
+
+
+def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: Any = None,
+             posterior_dir: str | Path | None = None,
+             thresholds: Thresholds | None = None, alpha: float = 0.05,
+             n_draws: int = N_DRAWS, seed: int | None = 0,
+             speed_range: tuple[float, float] = SPEED_RANGE,
+             diameter_range: tuple[float, float] = DIAMETER_RANGE) -> Diagnosis:
+    """Diagnose transport in a campaign, run by run.
+
+    Parameters
+    ----------
+    study : Study
+    fit_result : FitResult, optional
+        The fit the model-based part rests on; without it the study's model is fitted first
+        (:func:`kinfit.fitting.fit.fit_model`, no profile intervals, no candidate models).
+    posterior : Posterior, mapping or ndarray, optional
+        Posterior draws of the varying columns (see
+        :func:`kinfit.analysis.diagnosis.per_run.posterior_matrix`): adds 90 % intervals of each
+        criterion and the probability of each regime per run.
+    posterior_dir : path, optional
+        A folder where ``kinfit sample`` wrote ``posterior_draws.csv``; its draws are used when
+        ``posterior`` is not given (nothing happens when the file is absent).
+    thresholds : Thresholds, optional
+        Criteria limits (default: Ca < 0.05/|n|, Psi_R < 0.3, Mears < 0.15, eta >= 0.95).
+    alpha : float
+        Significance level of the model-free tests.
+    n_draws : int
+        Posterior draws evaluated (a random subsample).
+    seed : int or None
+        Seed of that subsample.
+    speed_range, diameter_range : (float, float)
+        Stirrer speeds (rev/s) and diameters (m) searched for the next runs.
+
+    Returns
+    -------
+    Diagnosis
+
+    Raises
+    ------
+    StudyError
+        Bad options, or a fit or posterior that does not match the study's model.
+    """
+    from kinfit.fitting.fit import FitOptions, fit_model, main_spec
+
+    if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
+        raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
+                         f"{alpha!r} instead.")
+    if not isinstance(n_draws, int) or n_draws < 1:
+        raise StudyError(f"the 'n_draws' option of diagnose() must be an int >= 1. Got "
+                         f"{n_draws!r} instead.")
+    for name, rng in (("speed_range", speed_range), ("diameter_range", diameter_range)):
+        if not (len(rng) == 2 and 0.0 < rng[0] < rng[1] and np.isfinite(rng[1])):
+            raise StudyError(f"the '{name}' option of diagnose() must be (low, high) with "
+                             f"0 < low < high. Got {rng!r} instead.")
+    thresholds = thresholds or Thresholds()
+    notes: list[str] = []
+    free = model_free_tests(study, alpha=alpha)
+    notes.extend(free.notes)
+    source = "given"
+    if fit_result is None:
+        # the study's own model only (candidate models of [fit] compare are not needed here)
+        fit_result = fit_model(main_spec(study), study,
+                               FitOptions(profile=False, thresholds=thresholds))
+        source = "fitted by diagnose (no profile intervals)"
+    else:
+        if fit_result.study and fit_result.study != study.name:
+            notes.append(f"the fit is of study '{fit_result.study}', not '{study.name}'")
+        inputs = fit_result.manifest.get("inputs", {}) if fit_result.manifest else {}
+        changed = [Path(k).name for k, v in study.files.items()
+                   if k in inputs and inputs[k].get("sha256") not in (None, v)]
+        if changed:
+            notes.append(f"input file(s) {changed} changed since the fit; refit before relying "
+                         "on the model-based numbers")
+    if not fit_result.converged:
+        notes.append("the fit did not converge: the model-based numbers are at its last "
+                     f"iterate ({fit_result.fit.get('message', '')})")
+    model, theta = model_for_fit(study, fit_result)
+    if posterior is None and posterior_dir is not None:
+        path = Path(posterior_dir) / DRAWS_FILE
+        if path.is_file():
+            posterior = read_draws(path)
+            notes.append(f"posterior draws from {path}")
+    draws = None if posterior is None else posterior_matrix(model, posterior)
+    per_run = run_diagnostics(model, theta, thresholds=thresholds, draws=draws, n_draws=n_draws,
+                              seed=seed)
+    if per_run.n_failed:
+        notes.append(f"{per_run.n_failed} posterior draws gave non-physical parameter values "
+                     "and were left out of the intervals")
+    if model.spec.pellet == "none":
+        notes.append("the model has no pore resistance ([pellet] diffusivity = \"none\"): "
+                     "eta = 1 and Weisz-Prater = 0 by assumption, not by evidence")
+    if model.spec.film.name == "none":
+        notes.append("the model has no film resistance: Carberry = Mears = 0 by assumption")
+    E, E_se, n = _intrinsic(fit_result, per_run.runs)
+    fals = falsified_kinetics(study, intrinsic_activation_energy=E,
+                              intrinsic_activation_energy_stderr=E_se, intrinsic_order=n)
+    nxt = next_runs(model, theta, thresholds=thresholds, speed_range=speed_range,
+                    diameter_range=diameter_range)
+    return Diagnosis(
+        study=study.name, model_free=free.tests, not_possible=free.not_possible,
+        runs=per_run.runs, intrinsic_runs=per_run.intrinsic_runs, falsified=fals,
+        next_runs=tuple(nxt),
+        thresholds=_threshold_block(thresholds, per_run.thresholds, alpha, model.spec.geometry),
+        sources=dict(SOURCES),
+        model={"label": model.spec.label, "converged": fit_result.converged,
+               "fit": source, "columns": list(model.columns),
+               "estimates": dict(zip(model.columns, map(float, theta), strict=True)),
+               "n_draws": per_run.n_draws},
+        notes=tuple(notes), alpha=float(alpha),
+    )
+
+
+# ----------------------------------------------------------------------------- command line
+def add_diagnose_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options of ``kinfit diagnose STUDY [--fit DIR] [--out DIR] ...``.
+
+    Parameters
+    ----------
+    parser : argparse.ArgumentParser
+        The subcommand's parser; the positional ``study`` and every option are added to it.
+    """
+    parser.add_argument("study", type=Path, help="the study file (TOML)")
+    parser.add_argument("--fit", type=Path, default=None, metavar="DIR",
+                        help="use the fit saved in DIR/results.json (default: fit first)")
+    parser.add_argument("--draws", type=Path, default=None, metavar="CSV",
+                        help="posterior draws, one column per varying parameter: adds "
+                             "intervals and regime probabilities (default: DIR/"
+                             f"{DRAWS_FILE} of --fit when present)")
+    parser.add_argument("--out", type=Path, default=Path("reports"),
+                        help="output folder for diagnosis.json (default: reports)")
+    parser.add_argument("--alpha", type=float, default=0.05,
+                        help="significance level of the model-free tests (default 0.05)")
+    parser.add_argument("--carberry", type=float, default=0.05, metavar="LIMIT",
+                        help="Carberry limit times |n| (default 0.05: Ca < 0.05/|n|)")
+    parser.add_argument("--weisz-prater", type=float, default=0.3, metavar="LIMIT",
+                        help="Weisz-Prater limit with R = dp/2 (default 0.3)")
+    parser.add_argument("--mears", type=float, default=0.15, metavar="LIMIT",
+                        help="Mears limit (default 0.15)")
+    parser.add_argument("--min-effectiveness", type=float, default=0.95, metavar="ETA",
+                        help="smallest effectiveness factor counted as kinetic (default 0.95)")
+    parser.add_argument("--max-speed", default="3000 rpm", metavar="SPEED",
+                        help="highest stirrer speed considered for next runs (default "
+                             "'3000 rpm')")
+    parser.add_argument("--n-draws", type=int, default=N_DRAWS, metavar="N",
+                        help=f"posterior draws evaluated (default {N_DRAWS})")
+    parser.add_argument("--seed", type=int, default=0, help="seed of the draw subsample")
+
+
+def _positive(name: str, value: float) -> float:
+    if not (np.isfinite(value) and value > 0):
+        raise StudyError(f"--{name} must be a number > 0, got {value}")
+    return float(value)
+
+
+def read_draws(path: str | Path) -> dict[str, Array]:
+    """Posterior draws from a CSV table, one column per quantity (extra columns such as
+    ``step``, ``walker``, ``log_prob`` are ignored later by name).
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file (``posterior_draws.csv`` of ``kinfit sample``).
+
+    Returns
+    -------
+    dict of str to ndarray
+        Column name -> draws.
+
+    Raises
+    ------
+    StudyError
+        Missing or unreadable file, or no numeric column.
+    """
+    import pandas as pd
+
+    path = Path(path)
+    if not path.is_file():
+        raise StudyError(f"posterior draws file '{path}' does not exist; give the CSV that "
+                         "'kinfit sample' wrote (posterior_draws.csv)")
+    try:
+        frame = pd.read_csv(path)
+    except (ValueError, OSError, pd.errors.ParserError) as exc:
+        raise StudyError(f"{path}: cannot read the posterior draws as CSV ({exc})") from None
+    out: dict[str, Array] = {}
+    for col in frame.columns:
+        try:
+            out[str(col)] = frame[col].to_numpy(dtype=float)
+        except (TypeError, ValueError):
+            continue
+    if not out or len(frame) == 0:
+        raise StudyError(f"{path}: no numeric columns of posterior draws")
+    return out
+
+
+def run_diagnose_command(args: argparse.Namespace) -> int:
+    """Run ``kinfit diagnose``: print the report and write diagnosis.json.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        Parsed by a parser set up with :func:`add_diagnose_arguments`.
+
+    Returns
+    -------
+    int
+        0 done; 1 the fit did not converge (the diagnosis is written all the same).
+
+    Raises
+    ------
+    StudyError
+        Bad input (the command line maps it to exit code 2).
+    """
+    import sys
+
+    from kinfit.core.files import prepare_out_dir
+    from kinfit.study.load import load_study
+    from kinfit.core.units import parse_quantity
+
+    study = load_study(args.study)
+    thresholds = Thresholds(
+        carberry=_positive("carberry", args.carberry),
+        weisz_prater_radius=_positive("weisz-prater", args.weisz_prater),
+        mears=_positive("mears", args.mears),
+        effectiveness=_positive("min-effectiveness", args.min_effectiveness),
+    )
+    if thresholds.effectiveness > 1:
+        raise StudyError(f"--min-effectiveness must be in (0, 1], got {args.min_effectiveness}")
+    top = parse_quantity(args.max_speed, "speed", where="--max-speed")
+    if not top > SPEED_RANGE[0]:
+        raise StudyError(f"--max-speed must exceed {SPEED_RANGE[0] * 60:g} rpm, got "
+                         f"'{args.max_speed}'")
+    fit_result = FitResult.load(args.fit) if args.fit is not None else None
+    posterior = read_draws(args.draws) if args.draws is not None else None
+    out = prepare_out_dir(args.out)
+    diag = diagnose(study, fit_result, posterior=posterior, posterior_dir=args.fit,
+                    thresholds=thresholds,
+                    alpha=args.alpha, n_draws=args.n_draws, seed=args.seed,
+                    speed_range=(SPEED_RANGE[0], top))
+    path = diag.save(out)
+    print(diag.report())
+    print(f"\nwrote {path}")
+    if not diag.model.get("converged", True):
+        print("kinfit: the fit did not converge; the model-based part is at its last iterate",
+              file=sys.stderr)
+        return 1
+    return 0

@@ -1,0 +1,492 @@
+"""Predictions at new conditions from a fitted campaign: concentration profiles (batch) or
+observed rates (rate campaign) at other particle sizes, stirrer speeds, temperatures, loadings
+and concentrations, with 90 % bands from the posterior draws or, without them, from the
+linearised covariance; the effectiveness factor and the regime at each condition; a warning for
+every factor outside the campaign's range, and a refusal to carry a film coefficient that was
+fitted only to film-limited data to other speeds or sizes.
+
+New conditions become :class:`~kinfit.study.load.Run` records of a study built with
+``dataclasses.replace``, so the same compiled, vectorised physics (:class:`~kinfit.model.compiled.Model`)
+predicts them as it fitted the campaign.
+
+Bands (central 90 % of the mean response over parameter draws):
+
+- posterior: a seeded subsample of ``posterior_draws.csv`` in the fit folder (written by
+  ``kinfit sample``);
+- covariance: multivariate normal draws in the optimiser's internal coordinates (ln x for
+  log-transformed parameters), ``u ~ N(u_hat, D^-1 C D^-1)`` with ``D = diag(dx/du)`` and ``C``
+  the linearised covariance of the fit (Bates & Watts 1988, ch. 2); draws outside the bounds
+  are dropped.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from numpy.typing import NDArray
+
+from kinfit.study.conditions import (  # noqa: F401 - re-exported: kinfit.analysis.predict is their public home too
+    _PHYSICS_ERRORS,
+    FACTOR_ALIASES,
+    FACTOR_KINDS,
+    PAD_RUN,
+    Condition,
+    FittedModel,
+    _predict_rows,
+    _unique_ids,
+    campaign_defaults,
+    conditions_from_argument,
+    conditions_study,
+    covariance_draws,
+    display,
+    load_fitted,
+    parse_conditions,
+    parse_times,
+    posterior_draws,
+    read_conditions,
+)
+from kinfit.physics.criteria import REGIMES, Thresholds
+from kinfit.errors import KinfitError, RegimeWarning, StudyError
+from kinfit.model.compiled import Model
+from kinfit.fitting.results import FitResult
+from kinfit.study.load import FACTORS, Study
+
+__all__ = [
+    "Condition", "FittedModel", "Prediction", "ExtrapolationRefused", "FACTOR_KINDS",
+    "FACTOR_ALIASES", "PAD_RUN", "campaign_defaults", "parse_conditions", "read_conditions",
+    "conditions_from_argument", "conditions_study", "display", "load_fitted",
+    "covariance_draws",
+    "posterior_draws", "parse_times", "predict_conditions", "film_information",
+    "outside_ranges", "add_predict_arguments", "run_predict_command",
+]
+
+Array = NDArray[np.float64]
+
+RANGE_RTOL = 0.01
+#: share of the information about kc_ref coming from film-regime runs above which the film
+#: coefficient counts as "fitted only to film-limited data"
+FILM_INFORMATION_SHARE = 0.9
+
+
+class ExtrapolationRefused(KinfitError):
+    """A prediction that would carry a film coefficient fitted only to film-limited data to
+    another stirrer speed or particle size (pass ``allow_extrapolation=True`` to override).
+
+    Attributes
+    ----------
+    reasons : list of str
+        One sentence per refused condition.
+
+    Examples
+    --------
+    >>> str(ExtrapolationRefused(["condition 'P1': dp 500 um outside 30-250 um"]))
+    "condition 'P1': dp 500 um outside 30-250 um"
+    """
+
+    def __init__(self, reasons: Sequence[str]) -> None:
+        self.reasons = list(reasons)
+        super().__init__("; ".join(self.reasons))
+
+
+# ------------------------------------------------------------------------------ range checks
+def outside_ranges(study: Study, condition: Condition, *, rtol: float = RANGE_RTOL
+                   ) -> list[dict[str, Any]]:
+    """Factors of ``condition`` outside the campaign's [min, max] (relative tolerance ``rtol``),
+    each ``{factor, value, min, max}`` in SI."""
+    out = []
+    for f in FACTORS:
+        v = np.array([r.factor(f) for r in study.runs], dtype=float)
+        lo, hi = float(v.min()), float(v.max())
+        x = condition.factors()[f]
+        if x < lo * (1 - rtol) or x > hi * (1 + rtol):
+            out.append({"factor": f, "value": x, "min": lo, "max": hi})
+    return out
+
+
+def film_information(fitted: FittedModel) -> dict[str, Any]:
+    """Where the information about the fitted film coefficient comes from.
+
+    The Fisher information of each ``kc_ref`` column in internal coordinates,
+    ``sum_i w_i J_i^2 / sigma_i^2``, is split between the runs by their regime at the estimate.
+
+    Returns
+    -------
+    dict
+        ``fitted`` (bool: kc_ref varies), ``all_film`` (every run's regime is "film"),
+        ``film_share`` (share of the kc_ref information from film-regime runs, or None),
+        ``film_only`` (all_film or film_share >= :data:`FILM_INFORMATION_SHARE`), ``regimes``.
+    """
+    from kinfit.estimate.evaluation import Evaluator, jacobian_internal
+
+    model = fitted.model
+    regimes = {rid: str(fitted.fit.runs.get(rid, {}).get("regime", "")) for rid in model.run_ids}
+    if not regimes or any(not v for v in regimes.values()):
+        from kinfit.model.simulation import run_table
+
+        regimes = {k: v["regime"] for k, v in run_table(model, fitted.theta).items()}
+    cols = [j for j, c in enumerate(model.column_parameter) if c == "kc_ref"]
+    all_film = all(v == "film" for v in regimes.values())
+    out: dict[str, Any] = {"fitted": bool(cols), "all_film": all_film, "film_share": None,
+                           "regimes": regimes}
+    if cols:
+        problem = model.problem(x0=fitted.theta)
+        u = problem.space.to_internal(fitted.theta)
+        jac = jacobian_internal(problem, Evaluator(problem), u, columns=np.array(cols))
+        if jac is not None:
+            sd = fitted.sigma(model.y, model.weights)
+            info = np.sum((jac / sd[:, None]) ** 2, axis=1)
+            film_rows = np.array([regimes[model.run_ids[i]] == "film" for i in model.run_index])
+            total = float(info.sum())
+            out["film_share"] = float(info[film_rows].sum() / total) if total > 0 else None
+    share = out["film_share"]
+    out["film_only"] = bool(cols) and (all_film or (share is not None
+                                                    and share >= FILM_INFORMATION_SHARE))
+    return out
+
+
+# ------------------------------------------------------------------------------ prediction
+@dataclass(frozen=True)
+class Prediction:
+    """Predictions at new conditions.
+
+    Attributes
+    ----------
+    study : str
+    kind : {"profile", "rate"}
+    conditions : tuple of Condition
+    frame : DataFrame
+        Long form: ``condition``, factors (SI), ``time [s]`` (profiles), the estimate at the
+        fitted values ``concentration [mol/m^3]`` (or ``rate [mol/(kg*s)]``) and the band
+        quantiles ``concentration_q05 [mol/m^3]``, ``..._q50``, ``..._q95``.
+    summary : dict
+        condition id -> factors, ``defaulted``, ``outside_range``, ``initial_rate``
+        {estimate, q05, q50, q95}, ``effectiveness_factor`` {estimate, q05, q95}, ``regime``,
+        ``regime_probability``, the per-run criteria of the results contract, ``refused``.
+    band : dict
+        ``source`` ("posterior" or "covariance"), ``level``, ``draws``, ``failed``.
+    film : dict
+        :func:`film_information` of the fit.
+    warnings : tuple of str
+    """
+
+    study: str
+    kind: str
+    conditions: tuple[Condition, ...]
+    frame: pd.DataFrame
+    summary: Mapping[str, Mapping[str, Any]]
+    band: Mapping[str, Any]
+    film: Mapping[str, Any]
+    warnings: tuple[str, ...] = ()
+    manifest: Mapping[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-Python content of predictions.json."""
+        from kinfit.core.files import to_plain
+
+        return to_plain({
+            "kinfit_predictions": 1, "study": self.study, "kind": self.kind,
+            "band": self.band, "film_information": self.film,
+            "conditions": self.summary, "warnings": list(self.warnings),
+            "units": {"temperature": "K", "stirrer_speed": "1/s (revolutions per second)",
+                      "particle_diameter": "m", "catalyst_loading": "kg/m^3",
+                      "initial_concentration": "mol/m^3", "time": "s",
+                      "concentration": "mol/m^3", "rate": "mol/(kg*s)"},
+            "manifest": self.manifest,
+        })
+
+    def save(self, folder: str | Path) -> Path:
+        """Write predictions.csv and predictions.json atomically into ``folder``."""
+        from kinfit.core.files import write_frame_atomic, write_json_atomic
+
+        folder = Path(folder)
+        write_frame_atomic(folder / "predictions.csv", self.frame)
+        return write_json_atomic(folder / "predictions.json", self.to_dict())
+
+    def report(self) -> str:
+        """Console summary: one block per condition."""
+        lo, hi = _quantile_names(self.band.get("level", 0.9))
+        lines = [f"predictions for study '{self.study}': {len(self.conditions)} condition(s); "
+                 f"{self.band['level']:.0%} bands from {self.band['source']} "
+                 f"({self.band['draws']} draws)"]
+        for c in self.conditions:
+            s = self.summary[c.id]
+            r = s["initial_rate"]
+            eta = s["effectiveness_factor"]
+            lines.append("")
+            lines.append(f"  {c.id}: {c.label()}"
+                         + (f"  (defaults: {', '.join(c.defaulted)})" if c.defaulted else ""))
+            lines.append(f"    initial rate {r['estimate']:.4g} mol/(kg s) "
+                         f"[{r[lo]:.4g}, {r[hi]:.4g}]; eta {eta['estimate']:.3f} "
+                         f"[{eta[lo]:.3f}, {eta[hi]:.3f}]; regime {s['regime']}")
+            for o in s["outside_range"]:
+                f_ = o["factor"]
+                lines.append(f"    outside the campaign: {display(f_, o['value'])} (campaign "
+                             f"{display(f_, o['min'], symbol=False)} to "
+                             f"{display(f_, o['max'], symbol=False)})")
+        for w in self.warnings:
+            lines.append(f"  warning: {w}")
+        return "\n".join(lines)
+
+
+def _quantile_names(level: float) -> tuple[str, str]:
+    a = round(100 * (1 - level) / 2)
+    return f"q{a:02d}", f"q{100 - a:02d}"
+
+
+def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condition], *,
+                       fit_dir: str | Path | None = None, times: Array | None = None,
+                       n_draws: int = 400, seed: int | None = None, level: float = 0.90,
+                       allow_extrapolation: bool = False,
+                       thresholds: Thresholds | None = None) -> Prediction:
+    """Predict the study's model at new conditions with bands.
+
+    Parameters
+    ----------
+    study : Study
+        The fitted campaign.
+    fit : FitResult
+        Its fit (``kinfit fit``).
+    conditions : sequence of Condition
+    fit_dir : path, optional
+        Folder of the fit; its ``posterior_draws.csv`` (``kinfit sample``) gives the bands when
+        present, else the covariance does.
+    times : ndarray, optional
+        Sampling times (s) of the predicted profiles; default 21 points from 0 to the longest
+        run of the campaign. Ignored for a rate campaign.
+    n_draws : int
+        Parameter draws for the bands.
+    seed : int, optional
+        Seed of the draws.
+    level : float
+        Central band probability (default 0.90).
+    allow_extrapolation : bool
+        Predict even where a film coefficient fitted only to film-limited data would be
+        carried to another stirrer speed or particle size.
+    thresholds : Thresholds, optional
+        Criteria limits of the per-condition table.
+
+    Returns
+    -------
+    Prediction
+
+    Raises
+    ------
+    ExtrapolationRefused
+        See ``allow_extrapolation``.
+    StudyError
+        Bad conditions, options or fit.
+
+    Warns
+    -----
+    RegimeWarning
+        A condition outside the campaign's range of a factor.
+    """
+    if not isinstance(n_draws, int) or n_draws < 20:
+        raise StudyError(f"the 'n_draws' option of predict_conditions() must be an int >= 20. "
+                         f"Got {n_draws!r} instead.")
+    if not 0.5 <= level < 1:
+        raise StudyError(f"the 'level' option must lie in [0.5, 1). Got {level!r} instead.")
+    conditions = tuple(conditions)
+    _unique_ids(conditions)
+    fitted = load_fitted(study, fit)
+    notes: list[str] = []
+    film = film_information(fitted)
+    refused: list[str] = []
+    refused_ids: set[str] = set()
+    outside = {c.id: outside_ranges(study, c) for c in conditions}
+    for c in conditions:
+        for o in outside[c.id]:
+            f_ = o["factor"]
+            text = (f"condition '{c.id}': {f_} {display(f_, o['value'], symbol=False)} lies "
+                    f"outside the campaign's range {display(f_, o['min'], symbol=False)} to "
+                    f"{display(f_, o['max'], symbol=False)}: the prediction extrapolates the "
+                    "fitted laws")
+            notes.append(text)
+            warnings.warn(text, RegimeWarning, stacklevel=2)
+        film_factors = [o for o in outside[c.id]
+                        if o["factor"] in ("stirrer_speed", "particle_diameter")]
+        if film["film_only"] and film_factors:
+            why = ("every run of the campaign was film-limited" if film["all_film"] else
+                   f"{film['film_share']:.0%} of the information about kc_ref came from "
+                   "film-limited runs")
+            refused_ids.add(c.id)
+            refused.append(
+                f"condition '{c.id}': {', '.join(o['factor'] for o in film_factors)} outside "
+                f"the campaign, but {why}, so the film coefficient (and the kinetics behind "
+                "it) is not known at other speeds or sizes; pass --allow-extrapolation "
+                "(allow_extrapolation=True) to predict anyway")
+    if refused and not allow_extrapolation:
+        raise ExtrapolationRefused(refused)
+    if refused:
+        notes.extend(f"extrapolated on request: {r}" for r in refused)
+    if study.kind == "profile":
+        if times is None:
+            t_max = max(float(r.times.max()) for r in study.runs if r.times.size)
+            times = np.linspace(0.0, t_max, 21)
+        times = np.asarray(times, dtype=float)
+    model = fitted.model_at(conditions, times=times)
+    theta = fitted.theta_for(model, fitted.theta)[0]
+    rng = np.random.default_rng(seed)
+    draws, source = None, "covariance"
+    if fit_dir is not None:
+        draws = posterior_draws(fitted, Path(fit_dir) / "posterior_draws.csv", n_draws, rng)
+        source = "posterior" if draws is not None else "covariance"
+    if draws is None:
+        draws = covariance_draws(fitted, n_draws, rng)
+    rows = fitted.theta_for(model, draws)
+    f_hat, ok_hat = _predict_rows(model, theta[None, :])
+    if not ok_hat[0]:
+        raise StudyError("the model cannot be evaluated at these conditions at the fitted "
+                         "values; check the conditions")
+    f, ok = _predict_rows(model, rows)
+    n_failed = int(np.sum(~ok))
+    if np.sum(ok) < 10:
+        raise StudyError(f"only {int(np.sum(ok))} of {rows.shape[0]} parameter draws could "
+                         "be evaluated at these conditions; the bands cannot be computed")
+    lo_name, hi_name = _quantile_names(level)
+    alpha = (1 - level) / 2
+    q = np.quantile(f[ok], [alpha, 0.5, 1 - alpha], axis=0)
+    frame = _frame(model, conditions, f_hat[0], q, lo_name, hi_name)
+    summary = _summaries(model, theta, rows[ok], conditions, outside, refused_ids, alpha,
+                         lo_name, hi_name, thresholds)
+    from kinfit.core.files import manifest
+
+    return Prediction(
+        study=study.name, kind=study.kind, conditions=conditions, frame=frame, summary=summary,
+        band={"source": source, "level": level, "draws": int(rows.shape[0]),
+              "failed": n_failed, "seed": seed,
+              "meaning": f"central {level:.0%} of the mean response over parameter draws"},
+        film=film, warnings=tuple(notes),
+        manifest=manifest(files=study.files, seed=seed, argv=None),
+    )
+
+
+def _frame(model: Model, conditions: Sequence[Condition], f_hat: Array, q: Array,
+           lo_name: str, hi_name: str) -> pd.DataFrame:
+    by_id = {c.id: c for c in conditions}
+    ids = np.asarray(model.run_ids)[model.run_index]
+    keep = ids != PAD_RUN
+    ids, f_hat, q = ids[keep], f_hat[keep], q[:, keep]
+    frame = pd.DataFrame({"condition": ids})
+    for f_ in FACTORS:
+        unit = {"temperature": "K", "stirrer_speed": "1/s", "particle_diameter": "m",
+                "catalyst_loading": "kg/m^3", "initial_concentration": "mol/m^3"}[f_]
+        frame[f"{f_} [{unit}]"] = [getattr(by_id[i], f_) for i in ids]
+    if model.spec.reactor == "batch":
+        frame["time [s]"] = model.times[keep]
+        name, unit = "concentration", "mol/m^3"
+    else:
+        name, unit = "rate", "mol/(kg*s)"
+    frame[f"{name} [{unit}]"] = f_hat
+    for label, row in zip((lo_name, "q50", hi_name), q, strict=True):
+        frame[f"{name}_{label} [{unit}]"] = row
+    return frame
+
+
+def _summaries(model: Model, theta: Array, rows: Array, conditions: Sequence[Condition],
+               outside: Mapping[str, list], refused: set[str], alpha: float, lo_name: str,
+               hi_name: str, thresholds: Thresholds | None) -> dict[str, dict[str, Any]]:
+    from kinfit.model.simulation import run_table
+
+    table = run_table(model, theta, thresholds=thresholds)
+    sub = rows[:: max(1, rows.shape[0] // 60)]
+    rates, etas, regimes = [], [], []
+    for row in sub:
+        try:
+            with np.errstate(all="ignore"):
+                st = model.run_states(row)
+        except _PHYSICS_ERRORS:
+            continue
+        rates.append(st.observed.rate)
+        etas.append(st.criteria.effectiveness_factor)
+        regimes.append(st.criteria.regime)
+    rates_a, etas_a, reg_a = np.array(rates), np.array(etas), np.array(regimes)
+    out = {}
+    for i, c in enumerate(conditions):
+        t = table[c.id]
+        entry: dict[str, Any] = {
+            **c.factors(), "group": c.group, "defaulted": list(c.defaulted),
+            "outside_range": outside[c.id],
+            "extrapolated_on_request": c.id in refused,
+            "regime": t["regime"], "criteria": t,
+        }
+        if rates_a.size:
+            rq = np.quantile(rates_a[:, i], [alpha, 0.5, 1 - alpha])
+            eq = np.quantile(etas_a[:, i], [alpha, 1 - alpha])
+            labels = list(reg_a[:, i])
+            entry["regime_probability"] = {r: labels.count(r) / len(labels) for r in REGIMES}
+        else:
+            rq = eq = np.full(3, np.nan)
+            entry["regime_probability"] = None
+        entry["initial_rate"] = {"estimate": t["observed_rate"], lo_name: float(rq[0]),
+                                 "q50": float(rq[1]), hi_name: float(rq[-1]),
+                                 "unit": "mol/(kg*s)"}
+        entry["effectiveness_factor"] = {"estimate": t["effectiveness_factor"],
+                                         lo_name: float(eq[0]), hi_name: float(eq[-1])}
+        out[c.id] = entry
+    return out
+
+
+# ------------------------------------------------------------------------------ command line
+def add_predict_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options of ``kinfit predict STUDY --fit DIR --at CONDITIONS``."""
+    parser.add_argument("study", type=Path, help="the fitted study file (TOML)")
+    parser.add_argument("--fit", type=Path, required=True,
+                        help="folder with results.json of 'kinfit fit' (and posterior_draws.csv "
+                             "of 'kinfit sample', used for the bands when present)")
+    parser.add_argument("--at", action="append", required=True, metavar="CONDITIONS",
+                        help="a CSV table of conditions (runs-table columns with units) or "
+                             "inline conditions such as \"dp=500 um, N=800 rpm, T=70 degC\" "
+                             "(keys T, N, dp, w, C0 or the full factor names; several "
+                             "separated by ';'; unspecified factors take the campaign value "
+                             "nearest the median); may be repeated")
+    parser.add_argument("--times", default=None,
+                        help="sampling times of the profiles, e.g. \"0, 10, 30, 60 min\" "
+                             "(default: 21 points up to the campaign's longest run)")
+    parser.add_argument("--draws", type=int, default=400,
+                        help="parameter draws for the bands (default 400)")
+    parser.add_argument("--seed", type=int, default=None, help="seed of the draws")
+    parser.add_argument("--allow-extrapolation", action="store_true",
+                        help="predict even when a film coefficient fitted only to film-limited "
+                             "data would be carried to another stirrer speed or particle size")
+    parser.add_argument("--out", type=Path, default=None,
+                        help="output folder (default: FIT/predict)")
+
+
+def run_predict_command(args: argparse.Namespace) -> int:
+    """Run ``kinfit predict``; returns the exit code (1 when the extrapolation is refused)."""
+    from kinfit.core.files import prepare_out_dir
+    from kinfit.study.load import load_study
+
+    study = load_study(args.study)
+    fit = FitResult.load(args.fit)
+    conditions: list[Condition] = []
+    for text in args.at:
+        conditions += conditions_from_argument(text, study, first_index=len(conditions) + 1)
+    times = parse_times(args.times) if args.times else None
+    out = Path(args.out) if args.out is not None else Path(args.fit) / "predict"
+    if out.resolve() == Path(args.fit).resolve():
+        raise StudyError(f"--out {out} is the fit folder, whose predictions.csv belongs to the "
+                         "fit; choose another folder")
+    try:
+        pred = predict_conditions(study, fit, conditions, fit_dir=args.fit, times=times,
+                                  n_draws=args.draws, seed=args.seed,
+                                  allow_extrapolation=args.allow_extrapolation)
+    except ExtrapolationRefused as exc:
+        for reason in exc.reasons:
+            print(f"kinfit: refused: {reason}", file=sys.stderr)
+        return 1
+    pred = replace(pred, manifest={**pred.manifest, "command": list(sys.argv)})
+    prepare_out_dir(out)
+    pred.save(out)
+    print(pred.report())
+    print(f"\nwrote {out / 'predictions.csv'} and {out / 'predictions.json'}")
+    return 0

@@ -1,0 +1,3 @@
+"""Floor 4: study and claim files, the parameter table, conditions, campaign summary."""
+
+__all__: list[str] = []
