@@ -20,7 +20,13 @@ import numpy as np
 import pytest
 from studies import noisy_batch_campaign, numbered, study_text
 
-from kinfit.analysis.audit.audit import FILM_EA_LIMIT, VERDICTS, add_audit_arguments, audit_claims, run_audit_command
+from kinfit.analysis.audit.audit import audit_claims
+
+from kinfit.cli.audit import add_arguments as add_audit_arguments
+
+from kinfit.cli.audit import run as run_audit_command
+
+from kinfit.analysis.audit.limits import FILM_EA_LIMIT, VERDICTS
 
 from kinfit.study.claims import load_claims
 from kinfit.errors import StudyError

@@ -26,12 +26,14 @@ import pytest
 from scipy import stats
 from studies import noisy_batch_campaign, numbered, study_text
 
-from kinfit.analysis.audit.audit import FILM_EA_LIMIT, audit_claims
+from kinfit.analysis.audit.audit import audit_claims
+
+from kinfit.analysis.audit.limits import FILM_EA_LIMIT
 
 from kinfit.study.claims import load_claims
 from kinfit.errors import StudyError
 from kinfit.fitting.fit import FitOptions, fit_model, main_spec
-from kinfit.physics.kinetics.base import LangmuirHinshelwood
+from kinfit.physics.kinetics.langmuir_hinshelwood import LangmuirHinshelwood
 from kinfit.model.compiled import ModelSpec
 
 R = 8.314462618

@@ -9,12 +9,13 @@ import math
 
 import pytest
 
-from kinfit.analysis.calculator import (
-    add_criteria_arguments,
-    criteria_from_measurement,
-    format_criteria,
-    run_criteria_command,
-)
+from kinfit.analysis.calculator import criteria_from_measurement
+
+from kinfit.cli.criteria import add_arguments as add_criteria_arguments
+
+from kinfit.cli.criteria import format_criteria
+
+from kinfit.cli.criteria import run as run_criteria_command
 from kinfit.errors import StudyError
 from kinfit.physics.properties import make_fluid
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from kinfit.physics.criteria import Thresholds, compute_criteria, regime_label
-from kinfit.physics.kinetics.base import PowerLaw
-from kinfit.physics.film import characteristic_length, external_area
-from kinfit.physics.surface import PelletRate, observed_rate, resistance_shares
+from kinfit.physics.criteria import Thresholds, compute_criteria, regime_label, resistance_shares
+from kinfit.physics.kinetics.power import PowerLaw
+from kinfit.physics.geometry import characteristic_length, external_area
+from kinfit.physics.surface import PelletRate, observed_rate
 
 LAW = PowerLaw(reference_temperature=330.0)
 
@@ -70,7 +70,8 @@ def test_film_only_series_resistance_first_order():
     obs, _ = _state(k_ref, 1.0, kfa, Cb)
     k1 = k_ref / 1000.0
     np.testing.assert_allclose(obs.rate, Cb / (1 / kfa + 1 / k1), rtol=1e-10)
-    film, pore, react = resistance_shares(obs, kfa)
+    film, pore, react = resistance_shares(obs.intrinsic_rate, obs.surface_concentration,
+                                          obs.effectiveness, kfa)
     np.testing.assert_allclose(film, (1 / kfa) / (1 / kfa + 1 / k1), rtol=1e-10)
     np.testing.assert_allclose(pore, 0.0, atol=1e-12)
 

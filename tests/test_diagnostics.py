@@ -19,12 +19,8 @@ from scipy.integrate import solve_ivp
 from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, write_study
 
 from kinfit.physics.criteria import Thresholds
-from kinfit.analysis.diagnosis.falsified import (
-    GAS_CONSTANT,
-    arrhenius_regression,
-    falsified_kinetics,
-    power_law_profile,
-)
+from kinfit.analysis.diagnosis.falsified import arrhenius_regression, falsified_kinetics, power_law_profile
+from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
 from kinfit.analysis.diagnosis.model_free import (
     _fit_levels,
     compare_rates,
@@ -34,12 +30,10 @@ from kinfit.analysis.diagnosis.model_free import (
 )
 from kinfit.analysis.diagnosis.next_runs import next_runs
 from kinfit.analysis.diagnosis.per_run import posterior_matrix
-from kinfit.analysis.diagnosis.diagnosis import (
-    add_diagnose_arguments,
-    diagnose,
-    model_for_fit,
-    run_diagnose_command,
-)
+from kinfit.fitting.saved import model_of_fit
+from kinfit.analysis.diagnosis.diagnosis import diagnose
+from kinfit.cli.diagnose import add_arguments as add_diagnose_arguments
+from kinfit.cli.diagnose import run as run_diagnose_command
 from kinfit.errors import StudyError
 from kinfit.fitting.fit import FitOptions, fit
 from kinfit.model.compiled import Model, ModelSpec
@@ -350,7 +344,7 @@ def test_not_possible_names_the_missing_runs(tmp_path):
 # ----------------------------------------------------------------------------- posterior
 def test_posterior_intervals_and_regime_probabilities(film_campaign):
     study, _, _, result = film_campaign
-    model, theta = model_for_fit(study, result)
+    model, theta = model_of_fit(study, result)
     cov = np.asarray(result.extras["covariance"])
     rng = np.random.default_rng(2)
     draws = rng.multivariate_normal(theta, cov, size=400)
@@ -477,7 +471,7 @@ def test_diagnose_command_reads_posterior_draws_of_the_fit_folder(film_campaign,
 
     study, _, _, result = film_campaign
     result.save(tmp_path / "fit")
-    model, theta = model_for_fit(study, result)
+    model, theta = model_of_fit(study, result)
     rng = np.random.default_rng(8)
     draws = rng.multivariate_normal(theta, np.asarray(result.extras["covariance"]), size=60)
     frame = pd.DataFrame(draws, columns=list(model.columns))

@@ -11,7 +11,7 @@ from scipy.constants import R
 
 from kinfit.errors import StudyError
 from kinfit.physics.kinetics.expressions import MAX_DEPTH, MAX_LENGTH, compile_expression
-from kinfit.physics.kinetics.base import PowerLaw
+from kinfit.physics.kinetics.power import PowerLaw
 
 
 @pytest.fixture

@@ -8,7 +8,12 @@ import pytest
 from scipy.constants import R
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.physics.kinetics.base import RATE_LAWS, ExpressionRate, LangmuirHinshelwood, PowerLaw, ReversibleFirstOrder, arrhenius, decorrelating_reference_temperature, make_rate_law, pre_exponential_factor, van_t_hoff
+from kinfit.physics.kinetics.registry import RATE_LAWS, make_rate_law
+from kinfit.physics.kinetics.expression import ExpressionRate
+from kinfit.physics.kinetics.langmuir_hinshelwood import LangmuirHinshelwood
+from kinfit.physics.kinetics.power import PowerLaw
+from kinfit.physics.kinetics.reversible import ReversibleFirstOrder
+from kinfit.physics.kinetics.arrhenius import arrhenius, decorrelating_reference_temperature, pre_exponential_factor, van_t_hoff
 from kinfit.physics.families import Interval
 
 

@@ -20,11 +20,11 @@ from scipy.integrate import quad
 from studies import study_text
 
 from kinfit.errors import ModelError
-from kinfit.physics.kinetics.base import LangmuirHinshelwood
+from kinfit.physics.kinetics.langmuir_hinshelwood import LangmuirHinshelwood
 from kinfit.model.compiled import Model, ModelSpec
 from kinfit.study.load import load_study
 from kinfit.physics.pellet import _lh_table
-from kinfit.physics.pellet.effectiveness import pellet_eta
+from kinfit.physics.pellet.numerical import pellet_eta
 from kinfit.physics.pellet._lh_table import eta_langmuir_hinshelwood
 from kinfit.physics.surface import PelletRate
 

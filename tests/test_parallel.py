@@ -27,14 +27,9 @@ from studies import simulate, study_text
 from kinfit.errors import StudyError
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.uncertainty import bootstrap, profile_intervals
-from kinfit.core.executors import (
-    SerialExecutor,
-    add_parallel_arguments,
-    available_workers,
-    executor_from_args,
-    fit_models,
-    make_executor,
-)
+from kinfit.core.executors import SerialExecutor, available_workers, make_executor
+from kinfit.cli.options import add_parallel_arguments, executor_from_args
+from kinfit.fitting.fit import fit_models
 
 # INVENTED true parameters (the demo scenario's values) and the fit's start values
 TRUTH = {

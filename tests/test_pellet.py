@@ -14,15 +14,10 @@ from scipy.optimize import brentq
 from kinfit.errors import ModelError, SolverError, StudyError
 from kinfit.physics.pellet import _phase as _pellet_phase
 from kinfit.physics.pellet import _power_table as _pellet_table
-from kinfit.physics.pellet.effectiveness import (
-    GEOMETRIES,
-    eta_first_order,
-    eta_power_law,
-    generalized_modulus,
-    generalized_modulus_power,
-    pellet_eta,
-    shape_index,
-)
+from kinfit.physics.pellet.effectiveness import eta_first_order, eta_power_law, generalized_modulus_power
+from kinfit.physics.pellet.modulus import generalized_modulus
+from kinfit.physics.pellet.numerical import pellet_eta
+from kinfit.physics.geometry import GEOMETRIES, shape_index
 
 SHAPES = {"slab": 0, "cylinder": 1, "sphere": 2}
 DE, LEN = 1e-9, 1e-4            # m^2/s, m (L = Vp/Sp)
@@ -427,7 +422,7 @@ def test_reversible_rate_law_takes_the_closed_form_on_the_surface_path():
     # the surface path uses eta_first_order at L sqrt(rho k (1 + 1/K)/(C_ref De)) (Aris 1975,
     # common practice); it must agree with the numerical pellet solver (pellet_eta, checked
     # above against the closed form and solve_bvp) at, above and below equilibrium
-    from kinfit.physics.kinetics.base import make_rate_law
+    from kinfit.physics.kinetics.registry import make_rate_law
     from kinfit.physics.surface import PelletRate
 
     law = make_rate_law("reversible", reference_temperature=330.0,

@@ -25,15 +25,10 @@ from studies import (
 )
 
 from kinfit.fitting.fit import FitOptions, fit
-from kinfit.analysis.plan import (
-    _logdet,
-    add_plan_arguments,
-    d_optimal,
-    information,
-    plan_runs,
-    run_plan_command,
-)
-from kinfit.study.conditions import load_fitted
+from kinfit.analysis.plan import _logdet, d_optimal, information, plan_runs
+from kinfit.cli.plan import add_arguments as add_plan_arguments
+from kinfit.cli.plan import run as run_plan_command
+from kinfit.fitting.saved import load_fitted
 from kinfit.study.load import load_study
 
 STUDY = study_text(

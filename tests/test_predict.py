@@ -19,8 +19,11 @@ from studies import numbered, profiles_csv, runs_csv, simulate, study_text, writ
 from kinfit.errors import RegimeWarning, StudyError
 from kinfit.fitting.fit import FitOptions, fit
 from kinfit.model.compiled import Model
-from kinfit.analysis.predict import ExtrapolationRefused, add_predict_arguments, predict_conditions, run_predict_command
-from kinfit.study.conditions import conditions_study, covariance_draws, load_fitted, parse_conditions, parse_times
+from kinfit.analysis.predict import ExtrapolationRefused, predict_conditions
+from kinfit.cli.predict import add_arguments as add_predict_arguments
+from kinfit.cli.predict import run as run_predict_command
+from kinfit.study.conditions import conditions_study, parse_conditions, parse_times
+from kinfit.fitting.saved import covariance_draws, load_fitted
 
 
 def synthetic(folder: Path, rows, *, kind: str = "profile", k: float = 0.05, n: float = 1.0,

@@ -7,7 +7,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from kinfit.errors import SolverError
-from kinfit.physics.kinetics.base import PowerLaw
+from kinfit.physics.kinetics.power import PowerLaw
 from kinfit.physics.reactors import BatchGrid, batch_profiles, cstr_outlet, differential_rates
 from kinfit.physics.surface import PelletRate, observed_rate
 

@@ -203,7 +203,7 @@ def _block_fitting(mp: pytest.MonkeyPatch) -> None:
 def plain_report(fitted, tmp_path_factory):
     """The report of the saved fit alone (no posterior, no diagnosis), built with every
     fitting function made to raise, and the bytes of what it wrote."""
-    from kinfit.report.command import build_report
+    from kinfit.report.build import build_report
 
     path, fit_dir = fitted
     out = tmp_path_factory.mktemp("plain") / "out"
@@ -216,7 +216,7 @@ def plain_report(fitted, tmp_path_factory):
 @pytest.fixture(scope="module")
 def full_report(fitted, tmp_path_factory):
     """A report with the posterior and diagnosis files present."""
-    from kinfit.report.command import build_report
+    from kinfit.report.build import build_report
 
     path, fit_dir = fitted
     folder = tmp_path_factory.mktemp("full")
@@ -384,7 +384,7 @@ def test_number_formatting():
 def test_first_order_effectiveness_reference_values(geometry, column):
     """Closed forms (Thiele 1939; Aris 1957) in the Aris normalisation against REFERENCES.md
     Table 1 ([calc], checked there against solve_bvp to 10 decimals)."""
-    from kinfit.report.figures import eta_first_order
+    from kinfit.physics.pellet.effectiveness import eta_first_order
 
     table = {0.1: (0.9966799462, 0.9950331057, 0.9940509699),
              0.5: (0.9242343145, 0.8927799318, 0.8762494526),
@@ -483,7 +483,7 @@ def test_regime_map_is_the_same_in_every_process():
 
 
 def test_same_results_give_the_same_report(fitted, plain_report):
-    from kinfit.report.command import build_report
+    from kinfit.report.build import build_report
 
     path, fit_dir = fitted
     first, files = plain_report
@@ -495,7 +495,7 @@ def test_same_results_give_the_same_report(fitted, plain_report):
 
 
 def test_wrong_study_or_missing_results(fitted, tmp_path):
-    from kinfit.report.command import build_report
+    from kinfit.report.build import build_report
 
     path, fit_dir = fitted
     with pytest.raises(StudyError, match="no results at .*kinfit fit"):
@@ -520,7 +520,8 @@ def test_wrong_study_or_missing_results(fitted, tmp_path):
 def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     """The command line hooks (default --fit = --out), on a study whose data changed after
     the fit: the report says so, in the summary and beside the digests."""
-    from kinfit.report.command import add_report_arguments, run_report_command
+    from kinfit.cli.report import add_arguments as add_report_arguments
+    from kinfit.cli.report import run as run_report_command
 
     path, fit_dir = fitted
     copy = tmp_path / "campaign"

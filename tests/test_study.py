@@ -222,7 +222,7 @@ BAD_CASES = {
     ),
     "unknown geometry": (
         dict(study=_edit(STUDY, '"sphere"', '"cube"')),
-        r"\[catalyst\]: geometry = 'cube' is not recognised; use one of \['sphere'",
+        r"\[catalyst\]: geometry = 'cube' is not recognised; use one of \['slab'",
     ),
     "unknown key in a section": (
         dict(study=_edit(STUDY, 'particle_density = "1500 kg/m^3"',

@@ -27,8 +27,6 @@ of each parameter is ``t sqrt(diag(M^-1))`` (Bates & Watts 1988, ch. 2), before 
 
 from __future__ import annotations
 
-import argparse
-import sys
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from itertools import product
@@ -40,16 +38,23 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy import stats
 
-from kinfit.study.conditions import PAD_RUN, Condition, FittedModel, display, load_fitted
-from kinfit.physics.criteria import Thresholds
+from kinfit.core.files import (
+    manifest,
+    to_plain,
+    write_frame_atomic,
+    write_json_atomic,
+    write_text_atomic,
+)
 from kinfit.errors import StudyError
-from kinfit.model.compiled import Model
+from kinfit.estimate.evaluation import Evaluator, jacobian_internal
 from kinfit.fitting.results import FitResult
+from kinfit.fitting.saved import FittedModel, load_fitted
+from kinfit.model.compiled import Model
+from kinfit.physics.criteria import Thresholds
+from kinfit.study.conditions import PAD_RUN, Condition, display
 from kinfit.study.load import FACTORS, Study
 
-__all__ = ["SPEED_RANGE", "DIAMETER_RANGE", "NOISE_Z", "CandidateGrid", "Plan",
-           "default_grid", "campaign_conditions", "transport_tests", "information",
-           "d_optimal", "plan_runs", "add_plan_arguments", "run_plan_command"]
+__all__ = ['SPEED_RANGE', 'DIAMETER_RANGE', 'NOISE_Z', 'CandidateGrid', 'Plan', 'default_grid', 'campaign_conditions', 'transport_tests', 'information', 'd_optimal', 'plan_runs']
 
 Array = NDArray[np.float64]
 #: stirrer speeds searched, rev/s (10 to 3000 rpm: lab autoclaves, common practice)
@@ -336,7 +341,6 @@ def information(fitted: FittedModel, conditions: Sequence[Condition] | None = No
     call of p + 1 rows) at the fitted values; the columns are the fit's, whatever columns the
     runs' own model has (by name). Without ``conditions`` the campaign's runs.
     """
-    from kinfit.estimate.evaluation import Evaluator, jacobian_internal
 
     if conditions is None:
         model = fitted.model
@@ -442,7 +446,6 @@ class Plan:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of plan.json."""
-        from kinfit.core.files import to_plain
 
         return to_plain({
             "kinfit_plan": 1, "study": self.study, "transport_tests": self.tests,
@@ -506,7 +509,6 @@ class Plan:
 
     def save(self, folder: str | Path) -> Path:
         """Write plan.json, plan_runs.csv and plan.md atomically into ``folder``."""
-        from kinfit.core.files import write_frame_atomic, write_json_atomic, write_text_atomic
 
         folder = Path(folder)
         write_frame_atomic(folder / "plan_runs.csv", self.runs_frame())
@@ -590,7 +592,6 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
                      "half_width_before": _num(b), "half_width_after": _num(a),
                      "ratio": float(a / b) if np.isfinite(a) and np.isfinite(b) and b > 0
                      else None, "half_width_random": _num(rand_hw[j])}
-    from kinfit.core.files import manifest
 
     picked = tuple(replace(cands[i], id=f"N{n + 1}") for n, i in enumerate(chosen))
     return Plan(
@@ -609,75 +610,5 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
 
 
 # ------------------------------------------------------------------------------ command line
-def _levels_option(text: str | None, kind: str, name: str) -> tuple[float, ...] | None:
-    from kinfit.core.units import to_si
-
-    if text is None:
-        return None
-    import re
-
-    m = re.match(r"^\s*([-+0-9.eE,\s]+?)\s*([A-Za-z].*)$", text)
-    if not m:
-        raise StudyError(f"--{name} '{text}': write comma-separated numbers followed by one "
-                         "unit, for example \"300, 600, 1200 rpm\"")
-    try:
-        nums = [float(s) for s in m.group(1).split(",") if s.strip()]
-    except ValueError:
-        raise StudyError(f"--{name} '{text}': '{m.group(1)}' is not a list of numbers") from None
-    return tuple(float(v) for v in to_si(np.array(nums), m.group(2).strip(), kind,
-                                         where=f"--{name}"))
 
 
-def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
-    """Options of ``kinfit plan STUDY --fit DIR [--runs K]``."""
-    parser.add_argument("study", type=Path, help="the fitted study file (TOML)")
-    parser.add_argument("--fit", type=Path, required=True,
-                        help="folder with results.json of 'kinfit fit'")
-    parser.add_argument("--runs", type=int, default=4, metavar="K",
-                        help="number of further runs to choose (default 4)")
-    parser.add_argument("--temperatures", default=None,
-                        help="candidate temperatures, e.g. \"40, 55, 70 degC\" (default: the "
-                             "campaign's)")
-    parser.add_argument("--speeds", default=None,
-                        help="candidate stirrer speeds, e.g. \"300, 600, 1200 rpm\" (default: "
-                             "the campaign's and the Carberry speed)")
-    parser.add_argument("--diameters", default=None,
-                        help="candidate particle diameters, e.g. \"30, 100, 250 um\" (default: "
-                             "the campaign's and the Weisz-Prater diameter)")
-    parser.add_argument("--loadings", default=None,
-                        help="candidate catalyst loadings, e.g. \"1, 2.5 g/L\"")
-    parser.add_argument("--concentrations", default=None,
-                        help="candidate initial concentrations, e.g. \"0.4, 0.8 mol/L\"")
-    parser.add_argument("--seed", type=int, default=0,
-                        help="seed of the random designs compared with (default 0)")
-    parser.add_argument("--out", type=Path, default=None,
-                        help="output folder (default: FIT/plan)")
-
-
-def run_plan_command(args: argparse.Namespace) -> int:
-    """Run ``kinfit plan``; returns the exit code."""
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    fit = FitResult.load(args.fit)
-    given = {"temperature": _levels_option(args.temperatures, "temperature", "temperatures"),
-             "stirrer_speed": _levels_option(args.speeds, "speed", "speeds"),
-             "particle_diameter": _levels_option(args.diameters, "length", "diameters"),
-             "catalyst_loading": _levels_option(args.loadings, "loading", "loadings"),
-             "initial_concentration": _levels_option(args.concentrations, "concentration",
-                                                     "concentrations")}
-    grid = None
-    if any(v is not None for v in given.values()):
-        fitted = load_fitted(study, fit)
-        rec = transport_tests(fitted)["recommended"]
-        base = default_grid(study, speed=rec["stirrer_speed"], diameter=rec["particle_diameter"])
-        grid = replace(base, **{k: _levels(v) for k, v in given.items() if v is not None})
-    plan = plan_runs(study, fit, n_runs=args.runs, grid=grid, seed=args.seed)
-    plan = replace(plan, manifest={**plan.manifest, "command": list(sys.argv)})
-    out = Path(args.out) if args.out is not None else Path(args.fit) / "plan"
-    prepare_out_dir(out)
-    plan.save(out)
-    print(plan.report())
-    print(f"\nwrote {out / 'plan.json'}, {out / 'plan_runs.csv'} and {out / 'plan.md'}")
-    return 0

@@ -21,11 +21,9 @@ Bands (central 90 % of the mean response over parameter draws):
 
 from __future__ import annotations
 
-import argparse
-import sys
 import warnings
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -33,40 +31,43 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.study.conditions import (  # noqa: F401 - re-exported: kinfit.analysis.predict is their public home too
+from kinfit.core.files import (
+    manifest,
+    to_plain,
+    write_frame_atomic,
+    write_json_atomic,
+)
+from kinfit.errors import KinfitError, RegimeWarning, StudyError
+from kinfit.estimate.evaluation import Evaluator, jacobian_internal
+from kinfit.fitting.results import FitResult
+from kinfit.fitting.saved import (
     _PHYSICS_ERRORS,
+    FittedModel,
+    covariance_draws,
+    load_fitted,
+    posterior_draws,
+    predict_rows,
+)
+from kinfit.model.compiled import Model
+from kinfit.model.simulation import run_table
+from kinfit.physics.criteria import REGIMES, Thresholds
+from kinfit.study.conditions import (
     FACTOR_ALIASES,
     FACTOR_KINDS,
     PAD_RUN,
     Condition,
-    FittedModel,
-    _predict_rows,
     _unique_ids,
     campaign_defaults,
     conditions_from_argument,
     conditions_study,
-    covariance_draws,
     display,
-    load_fitted,
     parse_conditions,
     parse_times,
-    posterior_draws,
     read_conditions,
 )
-from kinfit.physics.criteria import REGIMES, Thresholds
-from kinfit.errors import KinfitError, RegimeWarning, StudyError
-from kinfit.model.compiled import Model
-from kinfit.fitting.results import FitResult
 from kinfit.study.load import FACTORS, Study
 
-__all__ = [
-    "Condition", "FittedModel", "Prediction", "ExtrapolationRefused", "FACTOR_KINDS",
-    "FACTOR_ALIASES", "PAD_RUN", "campaign_defaults", "parse_conditions", "read_conditions",
-    "conditions_from_argument", "conditions_study", "display", "load_fitted",
-    "covariance_draws",
-    "posterior_draws", "parse_times", "predict_conditions", "film_information",
-    "outside_ranges", "add_predict_arguments", "run_predict_command",
-]
+__all__ = ['Condition', 'FittedModel', 'Prediction', 'ExtrapolationRefused', 'FACTOR_KINDS', 'FACTOR_ALIASES', 'PAD_RUN', 'campaign_defaults', 'parse_conditions', 'read_conditions', 'conditions_from_argument', 'conditions_study', 'display', 'load_fitted', 'covariance_draws', 'posterior_draws', 'parse_times', 'predict_conditions', 'film_information', 'outside_ranges']
 
 Array = NDArray[np.float64]
 
@@ -124,12 +125,10 @@ def film_information(fitted: FittedModel) -> dict[str, Any]:
         ``film_share`` (share of the kc_ref information from film-regime runs, or None),
         ``film_only`` (all_film or film_share >= :data:`FILM_INFORMATION_SHARE`), ``regimes``.
     """
-    from kinfit.estimate.evaluation import Evaluator, jacobian_internal
 
     model = fitted.model
     regimes = {rid: str(fitted.fit.runs.get(rid, {}).get("regime", "")) for rid in model.run_ids}
     if not regimes or any(not v for v in regimes.values()):
-        from kinfit.model.simulation import run_table
 
         regimes = {k: v["regime"] for k, v in run_table(model, fitted.theta).items()}
     cols = [j for j, c in enumerate(model.column_parameter) if c == "kc_ref"]
@@ -189,7 +188,6 @@ class Prediction:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of predictions.json."""
-        from kinfit.core.files import to_plain
 
         return to_plain({
             "kinfit_predictions": 1, "study": self.study, "kind": self.kind,
@@ -204,7 +202,6 @@ class Prediction:
 
     def save(self, folder: str | Path) -> Path:
         """Write predictions.csv and predictions.json atomically into ``folder``."""
-        from kinfit.core.files import write_frame_atomic, write_json_atomic
 
         folder = Path(folder)
         write_frame_atomic(folder / "predictions.csv", self.frame)
@@ -342,11 +339,11 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     if draws is None:
         draws = covariance_draws(fitted, n_draws, rng)
     rows = fitted.theta_for(model, draws)
-    f_hat, ok_hat = _predict_rows(model, theta[None, :])
+    f_hat, ok_hat = predict_rows(model, theta[None, :])
     if not ok_hat[0]:
         raise StudyError("the model cannot be evaluated at these conditions at the fitted "
                          "values; check the conditions")
-    f, ok = _predict_rows(model, rows)
+    f, ok = predict_rows(model, rows)
     n_failed = int(np.sum(~ok))
     if np.sum(ok) < 10:
         raise StudyError(f"only {int(np.sum(ok))} of {rows.shape[0]} parameter draws could "
@@ -357,7 +354,6 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     frame = _frame(model, conditions, f_hat[0], q, lo_name, hi_name)
     summary = _summaries(model, theta, rows[ok], conditions, outside, refused_ids, alpha,
                          lo_name, hi_name, thresholds)
-    from kinfit.core.files import manifest
 
     return Prediction(
         study=study.name, kind=study.kind, conditions=conditions, frame=frame, summary=summary,
@@ -394,7 +390,6 @@ def _frame(model: Model, conditions: Sequence[Condition], f_hat: Array, q: Array
 def _summaries(model: Model, theta: Array, rows: Array, conditions: Sequence[Condition],
                outside: Mapping[str, list], refused: set[str], alpha: float, lo_name: str,
                hi_name: str, thresholds: Thresholds | None) -> dict[str, dict[str, Any]]:
-    from kinfit.model.simulation import run_table
 
     table = run_table(model, theta, thresholds=thresholds)
     sub = rows[:: max(1, rows.shape[0] // 60)]
@@ -436,57 +431,5 @@ def _summaries(model: Model, theta: Array, rows: Array, conditions: Sequence[Con
 
 
 # ------------------------------------------------------------------------------ command line
-def add_predict_arguments(parser: argparse.ArgumentParser) -> None:
-    """Options of ``kinfit predict STUDY --fit DIR --at CONDITIONS``."""
-    parser.add_argument("study", type=Path, help="the fitted study file (TOML)")
-    parser.add_argument("--fit", type=Path, required=True,
-                        help="folder with results.json of 'kinfit fit' (and posterior_draws.csv "
-                             "of 'kinfit sample', used for the bands when present)")
-    parser.add_argument("--at", action="append", required=True, metavar="CONDITIONS",
-                        help="a CSV table of conditions (runs-table columns with units) or "
-                             "inline conditions such as \"dp=500 um, N=800 rpm, T=70 degC\" "
-                             "(keys T, N, dp, w, C0 or the full factor names; several "
-                             "separated by ';'; unspecified factors take the campaign value "
-                             "nearest the median); may be repeated")
-    parser.add_argument("--times", default=None,
-                        help="sampling times of the profiles, e.g. \"0, 10, 30, 60 min\" "
-                             "(default: 21 points up to the campaign's longest run)")
-    parser.add_argument("--draws", type=int, default=400,
-                        help="parameter draws for the bands (default 400)")
-    parser.add_argument("--seed", type=int, default=None, help="seed of the draws")
-    parser.add_argument("--allow-extrapolation", action="store_true",
-                        help="predict even when a film coefficient fitted only to film-limited "
-                             "data would be carried to another stirrer speed or particle size")
-    parser.add_argument("--out", type=Path, default=None,
-                        help="output folder (default: FIT/predict)")
 
 
-def run_predict_command(args: argparse.Namespace) -> int:
-    """Run ``kinfit predict``; returns the exit code (1 when the extrapolation is refused)."""
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    fit = FitResult.load(args.fit)
-    conditions: list[Condition] = []
-    for text in args.at:
-        conditions += conditions_from_argument(text, study, first_index=len(conditions) + 1)
-    times = parse_times(args.times) if args.times else None
-    out = Path(args.out) if args.out is not None else Path(args.fit) / "predict"
-    if out.resolve() == Path(args.fit).resolve():
-        raise StudyError(f"--out {out} is the fit folder, whose predictions.csv belongs to the "
-                         "fit; choose another folder")
-    try:
-        pred = predict_conditions(study, fit, conditions, fit_dir=args.fit, times=times,
-                                  n_draws=args.draws, seed=args.seed,
-                                  allow_extrapolation=args.allow_extrapolation)
-    except ExtrapolationRefused as exc:
-        for reason in exc.reasons:
-            print(f"kinfit: refused: {reason}", file=sys.stderr)
-        return 1
-    pred = replace(pred, manifest={**pred.manifest, "command": list(sys.argv)})
-    prepare_out_dir(out)
-    pred.save(out)
-    print(pred.report())
-    print(f"\nwrote {out / 'predictions.csv'} and {out / 'predictions.json'}")
-    return 0

@@ -1,4 +1,5 @@
-"""The command line: parses arguments and calls the Python API; nothing else lives here.
+"""The command line: the parser and the dispatch to one module per command (each with
+``add_arguments(parser)`` and ``run(args) -> exit code``); all printing lives in this folder.
 
 Exit codes: 0 done; 1 ran but did not converge or failed a criterion asked for; 2 bad input.
 """
@@ -8,16 +9,28 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from collections.abc import Callable, Sequence
-from pathlib import Path
+from collections.abc import Sequence
+from types import ModuleType
 from typing import Any
 
+from kinfit.cli import (
+    audit,
+    check,
+    criteria,
+    diagnose,
+    fit,
+    plan,
+    predict,
+    report,
+    run,
+    sample,
+    simulate,
+)
+from kinfit.cli.common import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_INTERRUPTED
+from kinfit.core.version import __version__
 from kinfit.errors import KinfitError, StudyError
 
-__all__ = ["main", "build_parser"]
-
-EXIT_OK, EXIT_FAILED, EXIT_BAD_INPUT = 0, 1, 2
-EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report SIGINT
+__all__ = ['main', 'build_parser']
 
 
 class _Parser(argparse.ArgumentParser):
@@ -27,285 +40,33 @@ class _Parser(argparse.ArgumentParser):
         raise StudyError(f"{self.prog}: {message}; see '{self.prog} --help'")
 
 
-def _cmd_check(args: argparse.Namespace) -> int:
-    from kinfit.study.campaign import campaign_summary
-    from kinfit.fitting.fit import main_spec
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    spec = main_spec(study)  # the model choices and the parameter table must fit together
-    print(campaign_summary(study))
-    print(f"\nmodel: {spec.label}; parameters {', '.join(spec.parameter_names)}")
-    print("study is valid")
-    return EXIT_OK
-
-
-def _cmd_simulate(args: argparse.Namespace) -> int:
-    from kinfit.core.files import manifest, prepare_out_dir, write_frame_atomic, write_json_atomic
-    from kinfit.model.simulation import runs_frame, simulate
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    sim = simulate(study)
-    out = prepare_out_dir(args.out)
-    write_frame_atomic(out / "predictions.csv", sim.predictions)
-    write_frame_atomic(out / "runs.csv", runs_frame(sim.runs))
-    write_json_atomic(out / "simulation.json", {
-        "study": study.name, "parameters": dict(study.parameters.values()), "runs": sim.runs,
-        "manifest": manifest(files=study.files),
-    })
-    print(runs_frame(sim.runs).to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-    print(f"\nwrote {out / 'predictions.csv'}, {out / 'runs.csv'}, {out / 'simulation.json'}")
-    return EXIT_OK
-
-
-def _fit_options(args: argparse.Namespace):
-    from kinfit.fitting.fit import FitOptions
-
-    return FitOptions(multistart=args.multistart, seed=args.seed, profile=not args.no_profile,
-                      bootstrap=args.bootstrap,
-                      bootstrap_kind="group" if args.bootstrap_runs else "residual",
-                      progress=not args.quiet, max_nfev=args.max_nfev)
-
-
-def _cmd_fit(args: argparse.Namespace) -> int:
-    from dataclasses import replace
-
-    from kinfit.fitting.fit import fit
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.core.executors import executor_from_args
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    out = prepare_out_dir(args.out)
-    with executor_from_args(args) as executor:
-        result = fit(study, replace(_fit_options(args), executor=executor),
-                     candidates=args.compare, argv=sys.argv)
-    result.save(out)
-    print(result.report())
-    print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
-    boot = result.extras.get("bootstrap") or {}
-    if boot.get("interrupted"):
-        print(f"kinfit: bootstrap interrupted after {boot['n_done']} of {boot['n']} replicates; "
-              "the results are saved with the intervals of the finished ones", file=sys.stderr)
-        return EXIT_INTERRUPTED
-    if not result.converged:
-        print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
-        return EXIT_FAILED
-    return EXIT_OK
-
-
-def _fit_arguments(p: argparse.ArgumentParser) -> None:
-    _add_common(p, out=True)
-    p.add_argument("--multistart", type=int, default=0, metavar="N",
-                   help="extra starts from a Sobol design inside the bounds")
-    p.add_argument("--seed", type=int, default=None, help="seed of multistart and bootstrap")
-    p.add_argument("--no-profile", action="store_true",
-                   help="skip profile-likelihood intervals (linearised only)")
-    p.add_argument("--bootstrap", type=int, default=0, metavar="N",
-                   help="bootstrap replicates (default 0: none)")
-    p.add_argument("--bootstrap-runs", action="store_true",
-                   help="resample whole runs instead of residuals")
-    p.add_argument("--compare", nargs="+", default=None, metavar="CANDIDATE",
-                   help="candidate models RATE_LAW[/FILM[/PELLET]] to compare with the study's")
-    from kinfit.core.executors import add_parallel_arguments
-
-    add_parallel_arguments(p)
-    p.add_argument("--max-nfev", type=int, default=None, metavar="N",
-                   help="cap on function evaluations of the optimiser")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
-
-
-def _cmd_sample(args: argparse.Namespace) -> int:
-    from kinfit.fitting.posterior import SampleOptions, sample_study
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.fitting.results import FitResult
-    from kinfit.study.load import load_study
-
-    study = load_study(args.study)
-    fit_dir = args.fit or args.out
-    if fit_dir is None:
-        raise StudyError("give --fit DIR (the folder of 'kinfit fit' results)")
-    fit = FitResult.load(fit_dir)
-    out = prepare_out_dir(args.out or fit_dir)
-    options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
-                            tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
-                            progress=not args.quiet, moves=args.moves)
-    post, content = sample_study(study, fit, out, options, argv=sys.argv)
-    print(post.report())
-    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
-    if post.interrupted:
-        print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
-              file=sys.stderr)
-        return EXIT_INTERRUPTED
-    if args.require_converged and not post.converged:
-        print(f"kinfit: the chain did not converge: {post.verdict}", file=sys.stderr)
-        return EXIT_FAILED
-    return EXIT_OK
-
-
-def _sample_arguments(p: argparse.ArgumentParser) -> None:
-    p.add_argument("study", type=Path, help="the study file (TOML)")
-    p.add_argument("--fit", type=Path, default=None,
-                   help="folder with results.json from 'kinfit fit' (default: --out)")
-    p.add_argument("--out", type=Path, default=None,
-                   help="output folder (default: the --fit folder)")
-    p.add_argument("--walkers", type=int, default=None, help="ensemble size")
-    p.add_argument("--steps", type=int, default=20000, help="step cap (default 20000)")
-    p.add_argument("--chunk", type=int, default=500, help="steps between checkpoints")
-    p.add_argument("--tau-multiple", type=float, default=50.0,
-                   help="stop when the chain exceeds this many autocorrelation times")
-    p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
-    p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
-    p.add_argument("--moves", choices=("de", "stretch"), default="de",
-                   help="proposal: differential-evolution move (default) or stretch move")
-    p.add_argument("--require-converged", action="store_true",
-                   help="exit 1 when the chain has not converged")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-
-
-def _cmd_run(args: argparse.Namespace) -> int:
-    """The whole job: check, fit, sample (until converged or the step cap), diagnose, report."""
-    import time
-
-    from kinfit.fitting.posterior import SampleOptions, sample_study
-    from kinfit.study.campaign import campaign_summary
-    from kinfit.analysis.diagnosis.diagnosis import diagnose
-    from kinfit.fitting.fit import FitOptions, fit
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.report.command import build_report
-    from kinfit.study.load import load_study
-
-    t0 = time.perf_counter()
-
-    def step(text: str) -> None:
-        print(f"[{time.perf_counter() - t0:6.1f} s] {text}", flush=True)
-
-    step(f"checking {args.study}")
-    study = load_study(args.study)
-    print(campaign_summary(study))
-    out = prepare_out_dir(args.out)
-    step("fitting all runs jointly (least squares, profile-likelihood intervals)")
-    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
-                                   progress=not args.quiet), argv=sys.argv)
-    result.save(out)
-    print(result.report())
-    code = EXIT_OK if result.converged else EXIT_FAILED
-    if args.steps > 0:
-        step(f"sampling the posterior ({args.steps} steps at most)")
-        post, _ = sample_study(study, result, out, SampleOptions(
-            max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
-            progress=not args.quiet), argv=sys.argv)
-        print(post.report())
-        if post.interrupted:
-            # what was sampled is checkpointed; the report is still written from it
-            code = EXIT_INTERRUPTED
-    step("diagnosing transport run by run")
-    diagnosis = diagnose(study, result, posterior_dir=out)
-    diagnosis.save(out)
-    print(diagnosis.report())
-    step("writing the report")
-    written = build_report(study, out, out, argv=sys.argv)
-    step(f"done: {written.html}")
-    if code == EXIT_INTERRUPTED:
-        print("kinfit: sampling was interrupted; the report shows the chain so far. To go on: "
-              f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
-              f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
-              file=sys.stderr)
-    return code
-
-
-def _run_arguments(p: argparse.ArgumentParser) -> None:
-    _add_common(p, out=True)
-    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
-    p.add_argument("--multistart", type=int, default=0, metavar="N",
-                   help="extra least-squares starts")
-    p.add_argument("--steps", type=int, default=10000,
-                   help="posterior step cap; sampling stops earlier once converged (0: no "
-                        "sampling; default 10000)")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
-
-
-def _lazy(module: str, function: str) -> Callable[[argparse.Namespace], int]:
-    """A command implemented in another module, imported only when it runs."""
-
-    def run(args: argparse.Namespace) -> int:
-        from importlib import import_module
-
-        return int(getattr(import_module(module), function)(args))
-
-    return run
-
-
-def _lazy_arguments(module: str, function: str) -> Callable[[argparse.ArgumentParser], None]:
-    def add(p: argparse.ArgumentParser) -> None:
-        from importlib import import_module
-
-        getattr(import_module(module), function)(p)
-
-    return add
-
-
-COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
-    "audit": ("audit claimed kinetics against transport criteria and data",
-              _lazy("kinfit.analysis.audit.audit", "run_audit_command")),
-    "predict": ("predict profiles or rates at new conditions, with bands",
-                _lazy("kinfit.analysis.predict", "run_predict_command")),
-    "plan": ("propose the next runs: transport tests and a D-optimal design",
-             _lazy("kinfit.analysis.plan", "run_plan_command")),
-    "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
-               _lazy("kinfit.report", "run_report_command")),
+#: command name -> (one-line help, module with ``add_arguments(parser)`` and ``run(args)``)
+COMMANDS: dict[str, tuple[str, ModuleType]] = {
+    "check": ("validate a study and show what the campaign can tell", check),
+    "simulate": ("predict every run at the study's parameter values", simulate),
+    "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", fit),
+    "sample": ("sample the posterior from the fit's optimum (emcee)", sample),
     "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
-                 _lazy("kinfit.analysis.diagnosis.diagnosis", "run_diagnose_command")),
-    "criteria": ("transport criteria for one measurement, no fitting",
-                 _lazy("kinfit.analysis.calculator", "run_criteria_command")),
-    "run": ("the whole job on a study: check, fit, sample, diagnose, report", _cmd_run),
-    "sample": ("sample the posterior from the fit's optimum (emcee)", _cmd_sample),
-    "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", _cmd_fit),
-    "check": ("validate a study and show what the campaign can tell", _cmd_check),
-    "simulate": ("predict every run at the study's parameter values", _cmd_simulate),
+                 diagnose),
+    "criteria": ("transport criteria for one measurement, no fitting", criteria),
+    "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)", report),
+    "run": ("the whole job on a study: check, fit, sample, diagnose, report", run),
+    "audit": ("audit claimed kinetics against transport criteria and data", audit),
+    "predict": ("predict profiles or rates at new conditions, with bands", predict),
+    "plan": ("propose the next runs: transport tests and a D-optimal design", plan),
 }
-
-
-def _add_common(p: argparse.ArgumentParser, *, out: bool = False) -> None:
-    p.add_argument("study", type=Path, help="the study file (TOML)")
-    if out:
-        p.add_argument("--out", type=Path, default=Path("reports"),
-                       help="output folder (default: reports)")
-
-
-_ORDER = ("check", "simulate", "fit", "sample", "diagnose", "criteria", "report", "run",
-          "audit", "predict", "plan")
 
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
     parser = _Parser(prog="kinfit", description="Intrinsic kinetics from porous-catalyst "
                      "campaigns: transport-aware fitting, uncertainty, diagnosis, reports.")
-    from kinfit import __version__
 
     parser.add_argument("--version", action="version", version=f"kinfit {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    names = sorted(COMMANDS, key=lambda n: _ORDER.index(n) if n in _ORDER else len(_ORDER))
-    for name in names:
-        help_text = COMMANDS[name][0]
-        p = sub.add_parser(name, help=help_text, description=help_text)
-        _ARGUMENTS.get(name, lambda q: _add_common(q))(p)
+    for name, (help_text, command) in COMMANDS.items():
+        command.add_arguments(sub.add_parser(name, help=help_text, description=help_text))
     return parser
-
-
-_ARGUMENTS: dict[str, Callable[[argparse.ArgumentParser], None]] = {
-    "simulate": lambda p: _add_common(p, out=True),
-    "fit": _fit_arguments,
-    "sample": _sample_arguments,
-    "run": _run_arguments,
-    "diagnose": _lazy_arguments("kinfit.analysis.diagnosis.diagnosis", "add_diagnose_arguments"),
-    "criteria": _lazy_arguments("kinfit.analysis.calculator", "add_criteria_arguments"),
-    "report": _lazy_arguments("kinfit.report", "add_report_arguments"),
-    "audit": _lazy_arguments("kinfit.analysis.audit.audit", "add_audit_arguments"),
-    "predict": _lazy_arguments("kinfit.analysis.predict", "add_predict_arguments"),
-    "plan": _lazy_arguments("kinfit.analysis.plan", "add_plan_arguments"),
-}
 
 
 def _show_warning(message: Warning | str, category: type[Warning], filename: str, lineno: int,
@@ -325,7 +86,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         with warnings.catch_warnings():
             warnings.simplefilter("default")
             warnings.showwarning = _show_warning
-            return COMMANDS[args.command][1](args)
+            return int(COMMANDS[args.command][1].run(args))
     except StudyError as exc:
         print(f"kinfit: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT

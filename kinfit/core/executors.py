@@ -32,33 +32,16 @@ True
 
 from __future__ import annotations
 
-import argparse
 import multiprocessing
 import os
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator
 from concurrent.futures import Executor, Future, ProcessPoolExecutor
 from contextlib import contextmanager
-from dataclasses import replace
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from kinfit.errors import StudyError
 
-if TYPE_CHECKING:  # imported lazily at run time: the command line must start fast
-    from kinfit.fitting.fit import FitOptions
-    from kinfit.model.compiled import ModelSpec
-    from kinfit.fitting.results import FitResult
-    from kinfit.study.load import Study
-
-__all__ = [
-    "SerialExecutor",
-    "make_executor",
-    "add_parallel_arguments",
-    "executor_from_args",
-    "available_workers",
-    "fit_models",
-    "DASK_TIMEOUT",
-    "PRELOAD",
-]
+__all__ = ["SerialExecutor", "make_executor", "available_workers", "DASK_TIMEOUT", "PRELOAD"]
 
 #: Seconds to wait for a Dask scheduler to answer before giving up with a message.
 DASK_TIMEOUT = 20.0
@@ -251,109 +234,3 @@ def _dask_executor(address: str, timeout: float) -> Iterator[Executor]:
     else:
         executor.shutdown(wait=True)
         client.close()
-
-
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be >= 1, got {value}")
-    return value
-
-
-def add_parallel_arguments(parser: argparse.ArgumentParser) -> argparse.ArgumentParser:
-    """Add ``--workers N`` and ``--scheduler ADDRESS`` (mutually exclusive) to ``parser``.
-
-    Parameters
-    ----------
-    parser : argparse.ArgumentParser
-        A command's parser (kinfit's parser turns argument errors into exit code 2).
-
-    Returns
-    -------
-    argparse.ArgumentParser
-        The same parser, for chaining.
-
-    Examples
-    --------
-    >>> p = add_parallel_arguments(argparse.ArgumentParser())
-    >>> p.parse_args(["--workers", "4"]).workers
-    4
-    """
-    group = parser.add_mutually_exclusive_group()
-    group.add_argument(
-        "--workers", type=_positive_int, default=None, metavar="N",
-        help="run independent refits (multistart, profiles, bootstrap, candidate models) in N "
-             f"local processes (this machine has {available_workers()} CPUs available)",
-    )
-    group.add_argument(
-        "--scheduler", default=None, metavar="ADDRESS",
-        help="run them on a Dask cluster instead, e.g. tcp://127.0.0.1:8786 (needs the 'scale' "
-             "extra: pip install kinfit[scale])",
-    )
-    return parser
-
-
-def executor_from_args(args: argparse.Namespace) -> Any:
-    """:func:`make_executor` for the options :func:`add_parallel_arguments` added.
-
-    Examples
-    --------
-    >>> ns = argparse.Namespace(workers=None, scheduler=None)
-    >>> with executor_from_args(ns) as ex:
-    ...     ex is None
-    True
-    """
-    return make_executor(workers=getattr(args, "workers", None),
-                         scheduler=getattr(args, "scheduler", None))
-
-
-def _fit_one(task: tuple[ModelSpec, Study, FitOptions]) -> FitResult:
-    """Fit one candidate (module level, so that process pools can pickle it)."""
-    from kinfit.fitting.fit import fit_model
-
-    spec, study, options = task
-    return fit_model(spec, study, options)
-
-
-def fit_models(
-    specs: Sequence[ModelSpec],
-    study: Study,
-    options: FitOptions | None = None,
-    *,
-    executor: Executor | None = None,
-) -> list[FitResult]:
-    """Fit several candidate models of one study, one candidate per task.
-
-    Parameters
-    ----------
-    specs : sequence of ModelSpec
-        The candidates (e.g. from :func:`kinfit.fitting.fit.parse_candidate`).
-    study : Study
-    options : FitOptions, optional
-        Options of every fit. Their own ``executor`` is dropped: each candidate runs whole in
-        one worker (executors do not nest across processes).
-    executor : concurrent.futures.Executor, optional
-        Where the candidates run; None fits them one after another here.
-
-    Returns
-    -------
-    list of FitResult
-        In the order of ``specs``, the same whatever the executor.
-
-    Examples
-    --------
-    >>> fit_models([], None)
-    []
-    """
-    if not specs:
-        return []
-    from kinfit.fitting.fit import FitOptions
-
-    opts = replace(options or FitOptions(), executor=None)
-    tasks = [(spec, study, opts) for spec in specs]
-    if executor is None:
-        return [_fit_one(t) for t in tasks]
-    return list(executor.map(_fit_one, tasks))

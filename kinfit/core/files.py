@@ -18,6 +18,9 @@ from typing import Any
 
 import numpy as np
 
+from kinfit.core.version import __version__
+from kinfit.errors import StudyError
+
 __all__ = ["atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
            "manifest", "to_plain", "prepare_out_dir"]
 
@@ -27,7 +30,6 @@ _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint"
 
 def prepare_out_dir(path: str | Path) -> Path:
     """Create the output folder (and parents) and return it."""
-    from kinfit.errors import StudyError
 
     out = Path(path)
     try:
@@ -125,7 +127,6 @@ def manifest(*, files: Mapping[str, str] | None = None, seed: int | None = None,
              argv: Sequence[str] | None = None, extra: Mapping[str, Any] | None = None
              ) -> dict[str, Any]:
     """The reproducibility manifest: input hashes, versions, seed and command line."""
-    from kinfit import __version__
 
     versions: dict[str, str | None] = {"kinfit": __version__,
                                        "python": platform.python_version()}

@@ -20,6 +20,7 @@ from typing import IO, Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.core.files import atomic_path
 from kinfit.errors import StudyError
 
 __all__ = ["Checkpoint", "atomic_write", "save_checkpoint", "load_checkpoint", "FORMAT_VERSION"]
@@ -71,7 +72,6 @@ def atomic_write(
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    from kinfit.core.files import atomic_path
 
     mode = "w" if text else "wb"
     kwargs: dict[str, Any] = {"encoding": "utf-8", "newline": ""} if text else {}

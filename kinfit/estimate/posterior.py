@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.core.files import atomic_path
 from kinfit.errors import StudyError
 from kinfit.estimate.checkpoint import atomic_write
 from kinfit.estimate.convergence import HDI_PROB, Diagnostics, hdi
@@ -466,7 +467,6 @@ def _atomic_path(path: str | os.PathLike[str]) -> Iterator[str]:
     folder = dest.parent if str(dest.parent) else Path(".")
     if not folder.is_dir():
         raise StudyError(f"cannot write '{dest}': folder '{folder}' does not exist; create it")
-    from kinfit.core.files import atomic_path
 
     with atomic_path(dest) as tmp:
         yield str(tmp)

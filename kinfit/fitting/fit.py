@@ -7,25 +7,26 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from concurrent.futures import Executor
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
-from kinfit.physics.criteria import Thresholds
+from kinfit.core.files import manifest
 from kinfit.errors import StudyError
+from kinfit.estimate.identifiability import identifiability
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.result import Estimate
 from kinfit.estimate.uncertainty import bootstrap, linearised_intervals, profile_intervals
-from kinfit.estimate.identifiability import identifiability
 from kinfit.fitting.identifiability import identifiability_warnings
-from kinfit.model.compiled import Model, ModelSpec
-from kinfit.core.files import manifest
 from kinfit.fitting.results import FitResult
+from kinfit.model.compiled import Model, ModelSpec
 from kinfit.model.simulation import point_table, run_table
+from kinfit.physics.criteria import Thresholds
 from kinfit.study.load import Study
 
-__all__ = ["FitOptions", "fit", "fit_model", "main_spec", "parse_candidate", "comparison_rows"]
+__all__ = ["FitOptions", "fit", "fit_model", "fit_models", "main_spec", "parse_candidate",
+           "comparison_rows"]
 
 
 @dataclass(frozen=True)
@@ -294,8 +295,6 @@ def fit(study: Study, options: FitOptions | None = None, *,
         return result
     from dataclasses import replace
 
-    from kinfit.core.executors import fit_models
-
     options = options or FitOptions()
     specs = [spec] + [parse_candidate(c, study) for c in candidates]
     others = fit_models(specs[1:], study, replace(options, profile=False, bootstrap=0),
@@ -340,3 +339,48 @@ def comparison_rows(results: Sequence[FitResult], labels: Sequence[str],
                                  "against": labels[0]}
         rows.append(row)
     return rows
+
+
+def _fit_one(task: tuple[ModelSpec, Study, FitOptions]) -> FitResult:
+    """Fit one candidate (module level, so that process pools can pickle it)."""
+    spec, study, options = task
+    return fit_model(spec, study, options)
+
+
+def fit_models(
+    specs: Sequence[ModelSpec],
+    study: Study,
+    options: FitOptions | None = None,
+    *,
+    executor: Executor | None = None,
+) -> list[FitResult]:
+    """Fit several candidate models of one study, one candidate per task.
+
+    Parameters
+    ----------
+    specs : sequence of ModelSpec
+        The candidates (e.g. from :func:`kinfit.fitting.fit.parse_candidate`).
+    study : Study
+    options : FitOptions, optional
+        Options of every fit. Their own ``executor`` is dropped: each candidate runs whole in
+        one worker (executors do not nest across processes).
+    executor : concurrent.futures.Executor, optional
+        Where the candidates run; None fits them one after another here.
+
+    Returns
+    -------
+    list of FitResult
+        In the order of ``specs``, the same whatever the executor.
+
+    Examples
+    --------
+    >>> fit_models([], None)
+    []
+    """
+    if not specs:
+        return []
+    opts = replace(options or FitOptions(), executor=None)
+    tasks = [(spec, study, opts) for spec in specs]
+    if executor is None:
+        return [_fit_one(t) for t in tasks]
+    return list(executor.map(_fit_one, tasks))

@@ -17,15 +17,14 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from kinfit.physics.criteria import REGIMES, Thresholds
-from kinfit.errors import StudyError
+from kinfit.core.files import manifest, write_frame_atomic, write_json_atomic
 from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
-from kinfit.fitting.fit import main_spec
-from kinfit.model.compiled import Model
-from kinfit.core.files import manifest, write_frame_atomic, write_json_atomic
 from kinfit.fitting.results import FitResult
+from kinfit.fitting.saved import model_of_fit
+from kinfit.model.compiled import Model
 from kinfit.model.simulation import run_table
+from kinfit.physics.criteria import REGIMES, Thresholds
 from kinfit.study.load import Study
 
 __all__ = ["SampleOptions", "sample_study", "posterior_run_summaries"]
@@ -71,15 +70,6 @@ class SampleOptions:
     moves: str = "de"
 
 
-def _fitted_theta(model: Model, fit: FitResult) -> np.ndarray:
-    est = fit.estimates()
-    missing = [c for c in model.columns if c not in est]
-    if missing:
-        raise StudyError(f"the fit results lack parameter '{missing[0]}'; refit the study "
-                         "with 'kinfit fit' before sampling")
-    return np.array([est[c] for c in model.columns])
-
-
 def posterior_run_summaries(model: Model, draws: np.ndarray, *,
                             thresholds: Thresholds | None = None) -> dict[str, dict[str, Any]]:
     """Per-run derived quantities over posterior draws: median, q05, q95 of each criterion
@@ -109,10 +99,9 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         What was written to posterior.json.
     """
     options = options or SampleOptions()
-    spec = main_spec(study)
-    model = Model(spec, study)
+    model, start = model_of_fit(study, fit)
+    spec = model.spec
     problem = model.problem()
-    start = _fitted_theta(model, fit)
     priors = {c: spec.parameters[p].prior for c, p in zip(model.columns, model.column_parameter,
                                                           strict=True)
               if spec.parameters[p].prior is not None}

@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from kinfit.core.files import to_plain, write_frame_atomic, write_json_atomic
 from kinfit.errors import StudyError
 
 __all__ = ["FitResult", "RESULTS_VERSION"]
@@ -78,7 +79,6 @@ class FitResult:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of results.json."""
-        from kinfit.core.files import to_plain
 
         return to_plain({
             "kinfit_results": RESULTS_VERSION,
@@ -111,7 +111,6 @@ class FitResult:
         (``manifest.outputs``), so that :meth:`load` can tell a matching pair from a
         predictions file left by another run or by an interruption between the two writes.
         """
-        from kinfit.core.files import write_frame_atomic, write_json_atomic
 
         folder = Path(folder)
         outputs: dict[str, Any] = {}

@@ -15,18 +15,23 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from kinfit.physics.criteria import Criteria, Thresholds, compute_criteria
 from kinfit.errors import ModelError, StudyError
 from kinfit.estimate.problem import ErrorModel, Problem, Space
-from kinfit.study.parameters import ParameterTable
+from kinfit.physics.criteria import Criteria, Thresholds, compute_criteria
+from kinfit.physics.film import make_film_model
+from kinfit.physics.geometry import characteristic_length, external_area
+from kinfit.physics.kinetics.registry import make_rate_law
+from kinfit.physics.pellet.effectiveness import eta_first_order
+from kinfit.physics.properties import make_fluid
 from kinfit.physics.reactors import BatchGrid, batch_profiles, differential_rates
-from kinfit.study.load import Study
 from kinfit.physics.surface import (
     ObservedRate,
     PelletRate,
     observed_rate,
     observed_rate_value,
 )
+from kinfit.study.load import Study
+from kinfit.study.parameters import ParameterTable
 
 __all__ = ["ModelSpec", "Model", "RunState", "ERROR_SCALE_NAMES"]
 
@@ -98,8 +103,6 @@ class ModelSpec:
             Unknown rate law, film model or pellet mode; a needed parameter missing; a
             parameter the model does not use.
         """
-        from kinfit.physics.kinetics.base import make_rate_law
-        from kinfit.physics.film import make_film_model
 
         kin = dict(study.kinetics)
         law_name = rate_law or kin["rate_law"]
@@ -116,7 +119,6 @@ class ModelSpec:
                                 _geomean([r.particle_diameter for r in study.runs]))
         fluid = None
         if study.fluid:
-            from kinfit.physics.properties import make_fluid
 
             fluid = make_fluid(**dict(study.fluid))
             if film_name not in ("agitation", "none"):
@@ -194,7 +196,6 @@ class Model:
     """
 
     def __init__(self, spec: ModelSpec, study: Study, *, grid: BatchGrid | None = None) -> None:
-        from kinfit.physics.film import characteristic_length, external_area
 
         self.spec, self.study = spec, study
         self.grid = grid or BatchGrid()
@@ -361,7 +362,6 @@ class Model:
         """First order in a batch slurry, closed form: with k1 = k(T)/C_ref, eta from the
         first-order closed form at Phi = L sqrt(rho_p k1/De) and the resistances in series
         1/k_obs = 1/(kc a_m) + 1/(eta k1), C = C0 exp(-w k_obs t) (Satterfield 1970)."""
-        from kinfit.physics.pellet.effectiveness import eta_first_order
 
         spec, law = self.spec, self.spec.rate_law
         law_p = {n: values[n] for n in law.parameter_names}

@@ -23,9 +23,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["Thresholds", "Criteria", "compute_criteria", "regime_label", "REGIMES",
+from kinfit.physics.geometry import characteristic_length, external_area
+
+__all__ = ["Thresholds", "Criteria", "compute_criteria", "regime_label", "resistance_shares", "REGIMES",
            "THRESHOLD_SOURCES"]
 
 Array = NDArray[np.float64]
@@ -120,6 +122,51 @@ def regime_label(film: Array, pore: Array, reaction: Array) -> NDArray[np.str_]:
     return out
 
 
+def resistance_shares(intrinsic_rate: ArrayLike, surface_concentration: ArrayLike,
+                      effectiveness: ArrayLike, conductance: ArrayLike,
+                      C_eq: ArrayLike = 0.0) -> tuple[Array, Array, Array]:
+    """Shares of film, pore and reaction in the overall resistance (the regime contract).
+
+    The rate is linearised at the surface, k1 = r(Cs)/(Cs - C_eq); resistances in series per
+    kg of catalyst are film 1/(kc a_m), reaction 1/k1 and pore (1/eta - 1)/k1 (Satterfield
+    1970, resistances in series; common practice). The reaction share equals r_obs / r(bulk)
+    for a first-order rate.
+
+    Parameters
+    ----------
+    intrinsic_rate : array_like
+        r(Cs) [mol/(kg s)].
+    surface_concentration : array_like
+        Cs [mol/m^3].
+    effectiveness : array_like
+        eta at Cs (1 without pore resistance).
+    conductance : array_like
+        kc a_m [m^3/(kg s)]; ``inf`` without a film.
+    C_eq : array_like, default 0
+        Equilibrium concentration [mol/m^3] of a reversible law.
+
+    Returns
+    -------
+    film, pore, reaction : ndarray
+        Fractions summing to 1.
+
+    Examples
+    --------
+    >>> f, p, r = resistance_shares(1.0, 1.0, 1.0, 1.0)
+    >>> float(f), float(p), float(r)
+    (0.5, 0.0, 0.5)
+    """
+    Cs = np.asarray(surface_concentration, dtype=float)
+    conductance = np.asarray(conductance, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        k1 = np.asarray(intrinsic_rate) / np.maximum(Cs - C_eq, 1e-300)
+        res_film = np.where(np.isfinite(conductance), 1.0 / conductance, 0.0)
+        res_react = 1.0 / k1
+        res_pore = (1.0 / np.asarray(effectiveness) - 1.0) / k1
+    total = res_film + res_react + res_pore
+    return res_film / total, res_pore / total, res_react / total
+
+
 def compute_criteria(
     *,
     observed_rate: Array,
@@ -161,7 +208,6 @@ def compute_criteria(
     order : ndarray or float
         Reaction order used by the Mears and Carberry limits (local order for other laws).
     """
-    from kinfit.physics.film import characteristic_length, external_area
 
     thresholds = thresholds or Thresholds()
     r = np.asarray(observed_rate, dtype=float)
@@ -180,12 +226,7 @@ def compute_criteria(
             wp = np.zeros_like(r)
         else:
             wp = r * particle_density * L**2 / (effective_diffusivity * np.maximum(Cs, 1e-300))
-        k1 = np.asarray(intrinsic_rate) / np.maximum(Cs - C_eq, 1e-300)
-        res_film = np.where(np.isfinite(conductance), 1.0 / conductance, 0.0)
-        res_react = 1.0 / k1
-        res_pore = (1.0 / np.asarray(effectiveness) - 1.0) / k1
-    total = res_film + res_react + res_pore
-    film, pore, react = res_film / total, res_pore / total, res_react / total
+    film, pore, react = resistance_shares(intrinsic_rate, Cs, effectiveness, conductance, C_eq)
     order_scalar = float(np.median(n)) if n.size else 1.0
     return Criteria(
         thiele_modulus=np.asarray(thiele_modulus, dtype=float),

@@ -1,4 +1,4 @@
-"""External (liquid-solid film) mass-transfer coefficients, and the pellet's external geometry.
+"""External (liquid-solid film) mass-transfer coefficients.
 
 A film model gives k_c [m/s] for each observation from the stirrer speed N [rev/s], the particle
 diameter dp [m], the temperature T [K] and (for the agitation law) fitted parameters. Families:
@@ -14,7 +14,7 @@ diameter dp [m], the temperature T [K] and (for the agitation law) fitted parame
 
 Shapes broadcast like the rate laws: N, dp, T of shape (n,), parameters of shape (m, 1), result
 (m, n). The film rate per kg of catalyst is k_c a_m (C_b - C_s), with a_m from
-:func:`external_area`.
+:func:`kinfit.physics.geometry.external_area`.
 """
 
 from __future__ import annotations
@@ -32,9 +32,6 @@ from kinfit.physics.families import DeclaredParameters, Interval, check_limits, 
 from kinfit.physics.properties import Fluid
 
 __all__ = [
-    "GEOMETRIES",
-    "characteristic_length",
-    "external_area",
     "specific_power",
     "kolmogorov_reynolds",
     "sherwood_sano",
@@ -57,78 +54,6 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 Params = Mapping[str, ArrayLike]
-
-# ----------------------------------------------------------------------------------------------
-# Pellet external geometry
-# ----------------------------------------------------------------------------------------------
-
-#: V_p / S_p divided by dp for each geometry: sphere of diameter dp, infinite cylinder of
-#: diameter dp, slab of thickness dp (sealed edges). Derived from the volumes and areas.
-_LENGTH_FRACTION = {"sphere": 1.0 / 6.0, "cylinder": 1.0 / 4.0, "slab": 1.0 / 2.0}
-GEOMETRIES = tuple(_LENGTH_FRACTION)
-
-
-def _geometry_fraction(geometry: str) -> float:
-    try:
-        return _LENGTH_FRACTION[geometry]
-    except (KeyError, TypeError):
-        raise StudyError(
-            f"[catalyst] geometry '{geometry}' is not recognised; use one of {list(GEOMETRIES)}"
-        ) from None
-
-
-def characteristic_length(geometry: str, dp: ArrayLike) -> FloatArray:
-    """Characteristic length L = V_p / S_p [m].
-
-    Parameters
-    ----------
-    geometry : {'sphere', 'cylinder', 'slab'}
-        Sphere of diameter dp (L = dp/6), infinite cylinder of diameter dp (L = dp/4), slab of
-        thickness dp with sealed edges (L = dp/2).
-    dp : array_like
-        Particle diameter or slab thickness [m], any shape.
-
-    Returns
-    -------
-    ndarray
-        L [m], shape of ``dp``.
-
-    Raises
-    ------
-    StudyError
-        Unknown geometry (the message lists the valid ones).
-
-    Examples
-    --------
-    >>> round(float(characteristic_length("sphere", 60e-6)), 12)
-    1e-05
-    """
-    return _geometry_fraction(geometry) * np.asarray(dp, dtype=float)
-
-
-def external_area(geometry: str, dp: ArrayLike, rho_p: ArrayLike) -> FloatArray:
-    """External surface area per kg of catalyst, a_m = S_p / (rho_p V_p) = 1 / (rho_p L) [m^2/kg].
-
-    Parameters
-    ----------
-    geometry : {'sphere', 'cylinder', 'slab'}
-    dp : array_like
-        Particle diameter or slab thickness [m].
-    rho_p : array_like
-        Particle (pellet) density [kg/m^3].
-
-    Returns
-    -------
-    ndarray
-        a_m [m^2/kg], broadcast shape of ``dp`` and ``rho_p``.
-
-    Examples
-    --------
-    >>> round(float(external_area("sphere", 50e-6, 1500.0)), 6)
-    80.0
-    """
-    return 1.0 / (np.asarray(rho_p, dtype=float) * characteristic_length(geometry, dp))
-
 
 # ----------------------------------------------------------------------------------------------
 # Published Sherwood correlations (pure functions)

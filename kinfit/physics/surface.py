@@ -18,9 +18,11 @@ import numpy as np
 from numpy.typing import NDArray
 
 from kinfit.errors import SolverError
+from kinfit.physics.pellet import _lh_table
+from kinfit.physics.pellet.effectiveness import eta_first_order, eta_power_law
+from kinfit.physics.pellet.numerical import pellet_eta
 
-__all__ = ["ObservedRate", "PelletRate", "solve_surface", "observed_rate", "observed_rate_value",
-           "resistance_shares"]
+__all__ = ["ObservedRate", "PelletRate", "solve_surface", "observed_rate", "observed_rate_value"]
 
 Array = NDArray[np.float64]
 
@@ -101,7 +103,6 @@ class PelletRate:
             one = np.ones_like(Cs)
             dr = self.law.drate_dC(Cs, self.T, self.p, C0=self.C0) if derivative else None
             return r, dr, one, np.zeros_like(Cs), r
-        from kinfit.physics.pellet import effectiveness as pellet
         if self.order is not None:
             n = self.order
             rv = self.rho_p * r
@@ -109,9 +110,9 @@ class PelletRate:
                 phi = self.L * np.sqrt(np.maximum((n + 1.0) * 0.5 * rv / (self.De * Cs), 0.0))
             phi = np.where(Cs > 0, phi, np.inf)
             if not derivative:
-                eta = pellet.eta_power_law(phi, n, self.geometry)
+                eta = eta_power_law(phi, n, self.geometry)
                 return eta * r, None, eta, phi, r
-            eta, slope = pellet.eta_power_law(phi, n, self.geometry, return_slope=True)
+            eta, slope = eta_power_law(phi, n, self.geometry, return_slope=True)
             g = eta * r
             # d ln(eta r)/d ln Cs = n + (n-1)/2 * d ln eta/d ln Phi, since Phi ~ Cs^((n-1)/2)
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -122,7 +123,7 @@ class PelletRate:
             # phi = L sqrt(rho_p a / De), the same at every Cs (Aris 1975, common practice)
             phi_lin = np.broadcast_to(self.L * np.sqrt(self.rho_p * self.slope / self.De),
                                       np.shape(r)).astype(float)
-            eta_lin = pellet.eta_first_order(phi_lin, self.geometry)
+            eta_lin = eta_first_order(phi_lin, self.geometry)
             dg_lin = eta_lin * np.broadcast_to(self.slope, np.shape(r)) if derivative else None
             return eta_lin * r, dg_lin, eta_lin, phi_lin, r
         if self.lh is not None:
@@ -132,7 +133,6 @@ class PelletRate:
     def _langmuir_hinshelwood(self, Cs: Array, r: Array, derivative: bool):
         """Tabulated eta for k K C/(1 + K C)^m where K Cs lies in the table's domain, the
         numerical pellet solver (:meth:`_general`) at the other points."""
-        from kinfit.physics.pellet import _lh_table
         assert self.lh is not None and self.De is not None
         K, m, kK = self.lh
         shape = np.broadcast_shapes(np.shape(Cs), np.shape(r), np.shape(K), np.shape(kK),
@@ -182,7 +182,6 @@ class PelletRate:
         return sub
 
     def _general(self, Cs: Array, r: Array, derivative: bool):
-        from kinfit.physics.pellet import effectiveness as pellet
         rho = self.rho_p
         T, p, C0 = self.T, self.p, self.C0
 
@@ -193,7 +192,7 @@ class PelletRate:
             return rho * self.law.drate_dC(C, _grid(T, C), _grid_params(p, C), C0=_grid(C0, C))
 
         def solve(c: Array):
-            return pellet.pellet_eta(rate_v, drate_v, c, _bcast(self.De, c), _bcast(self.L, c),
+            return pellet_eta(rate_v, drate_v, c, _bcast(self.De, c), _bcast(self.L, c),
                                      self.geometry, C_eq=_bcast(self.C_eq, c))
 
         eta, phi = solve(Cs)
@@ -363,24 +362,3 @@ def observed_rate_value(Cb: Array, pellet_rate: PelletRate, conductance: Array) 
 
     _, rate = solve_surface(Cb, conductance, g, C_eq=pellet_rate.C_eq, return_rate=True)
     return rate
-
-
-def resistance_shares(obs: ObservedRate, conductance: Array, C_eq: Array | float = 0.0):
-    """Shares of film, pore and reaction in the overall resistance (DESIGN contract).
-
-    The rate is linearised at the surface, k1 = r(Cs)/(Cs - C_eq); resistances per kg are
-    film 1/(kc a_m), reaction 1/k1, pore (1/eta - 1)/k1.
-
-    Returns
-    -------
-    film, pore, reaction : ndarray
-        Fractions summing to 1.
-    """
-    Cs = obs.surface_concentration
-    with np.errstate(divide="ignore", invalid="ignore"):
-        k1 = obs.intrinsic_rate / np.maximum(Cs - C_eq, 1e-300)
-        film = np.where(np.isfinite(conductance), 1.0 / conductance, 0.0)
-        react = 1.0 / k1
-        pore = (1.0 / obs.effectiveness - 1.0) / k1
-    total = film + react + pore
-    return film / total, pore / total, react / total

@@ -1,4 +1,4 @@
-"""Publication-grade, reproducible reports of a saved fit: ``kinfit report``.
+"""Publication-grade, reproducible reports of a saved fit (``kinfit report``; :mod:`kinfit.report.build`).
 
 One builder (:mod:`kinfit.report.builder`) turns the saved results, and the posterior and the
 diagnosis when present, into sections once; :mod:`kinfit.report.render` writes them as a
@@ -9,11 +9,6 @@ never refit.
 
 from __future__ import annotations
 
-from kinfit.report.command import (
-    ReportResult,
-    add_report_arguments,
-    build_report,
-    run_report_command,
-)
+from kinfit.report.build import ReportResult, build_report
 
-__all__ = ["ReportResult", "build_report", "add_report_arguments", "run_report_command"]
+__all__ = ["ReportResult", "build_report"]

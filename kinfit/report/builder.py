@@ -9,14 +9,13 @@ model comparison, transport diagnosis, posterior, limits of validity, cautions, 
 from __future__ import annotations
 
 import shlex
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from kinfit.study.campaign import TEST_MEANING
 from kinfit.physics.criteria import REGIMES
 from kinfit.report import figures as fg
 from kinfit.report.content import (
@@ -24,12 +23,10 @@ from kinfit.report.content import (
     FACTOR_LABEL,
     Code,
     Facts,
-    FigureBlock,
     Heading,
     Items,
     Report,
     Section,
-    Table,
     Text,
     factor_text,
     fmt,
@@ -37,10 +34,12 @@ from kinfit.report.content import (
     fmt_p,
     get_path,
 )
+from kinfit.report.context import ReportContext
 from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
 from kinfit.report.transport_sections import posterior_section, transport_section
+from kinfit.study.campaign import TEST_MEANING
 from kinfit.study.load import FACTORS, comparison_sets
 
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
@@ -65,7 +64,7 @@ def _cmd(argv: Sequence[str]) -> str:
     return shlex.join(parts)
 
 
-class ReportBuilder:
+class ReportBuilder(ReportContext):
     """Builds the report's sections from :class:`~kinfit.report.inputs.ReportInputs`.
 
     Parameters
@@ -76,44 +75,6 @@ class ReportBuilder:
     out_dir : Path, optional
         Where the report goes (for the reproduce command).
     """
-
-    def __init__(self, inputs: ReportInputs, *, argv: Sequence[str] | None = None,
-                 out_dir: Path | None = None) -> None:
-        self.inp = inputs
-        self.res = inputs.result
-        self.argv = list(argv) if argv is not None else None
-        self.out_dir = out_dir
-        self._tables = 0
-        self._figures: list[FigureBlock] = []
-        self.csv: dict[str, pd.DataFrame] = {}
-        self.notes: list[str] = list(inputs.notes)
-        self.regimes = {rid: str(r.get("regime", "mixed")) for rid, r in self.res.runs.items()}
-        self.units = {n: str(p.get("unit", "")) for n, p in self.res.parameters.items()}
-        for name in (self.inp.posterior or {}).get("parameters", {}) or {}:
-            self.units.setdefault(name, "mol/m^3" if name == "sigma" else "1")
-
-    # ------------------------------------------------------------------ numbering helpers
-    def table(self, caption: str, header: Sequence[str], rows: Sequence[Sequence[str]], *,
-              tones: Sequence[Sequence[str | None]] | None = None,
-              numeric: Sequence[bool] = (), csv: str | None = None) -> Table:
-        """A numbered table."""
-        self._tables += 1
-        return Table(self._tables, caption, tuple(header), tuple(tuple(r) for r in rows),
-                     None if tones is None else tuple(tuple(t) for t in tones),
-                     tuple(numeric), csv)
-
-    def figure(self, key: str, caption: str, make: Callable[[], Any], alt: str) -> FigureBlock | None:
-        """A numbered figure; a figure that cannot be drawn becomes a note, not a crash."""
-        try:
-            fig = make()
-        except (ValueError, KeyError, IndexError, TypeError, np.linalg.LinAlgError) as exc:
-            self.notes.append(f"figure '{key}' was not drawn: {exc}")
-            return None
-        png, svg = fg.render(fig)
-        block = FigureBlock(len(self._figures) + 1, key, caption, png, svg, alt,
-                            width_in=float(fig.get_size_inches()[0]))
-        self._figures.append(block)
-        return block
 
     # ------------------------------------------------------------------ sections
     def build(self) -> Report:

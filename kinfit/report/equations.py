@@ -8,15 +8,13 @@ from __future__ import annotations
 
 import io
 import re
-from typing import TYPE_CHECKING, Any, cast
+from typing import Any, cast
 
 import matplotlib
 
 from kinfit.report import figures as fg
 from kinfit.report.content import Code, Equation, Facts, Heading, Section, fmt
-
-if TYPE_CHECKING:
-    from kinfit.report.builder import ReportBuilder
+from kinfit.report.context import ReportContext
 
 __all__ = ["EQUATIONS", "ETA_FIRST_ORDER", "L_OF", "model_section", "equation_svg"]
 
@@ -65,7 +63,7 @@ EQUATIONS = {
 }
 
 
-def model_section(rb: ReportBuilder) -> Section:
+def model_section(rb: ReportContext) -> Section:
     """The model section: the choices and their equations written out."""
     m = rb.res.model
     law, film, pellet = m.get("rate_law"), m.get("film"), m.get("pellet")

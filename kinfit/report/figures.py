@@ -26,9 +26,12 @@ from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 from numpy.typing import NDArray
 
+from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
+from kinfit.physics.pellet.effectiveness import eta_power_law
+
 __all__ = [
     "PALETTE", "REGIME_COLOURS", "STYLE", "render", "pretty_unit", "axis_label", "display_scale",
-    "eta_first_order", "eta_curve", "profiles_figure", "rates_figure", "parity_figure",
+    "eta_curve", "profiles_figure", "rates_figure", "parity_figure",
     "residuals_figure", "arrhenius_figure", "effectiveness_figure", "regime_map_figure",
     "correlation_figure", "corner_figure", "trace_figure", "profile_likelihood_figure",
 ]
@@ -48,7 +51,6 @@ CURVE = "#1f5a84"
 REGIME_COLOURS = {"kinetic": "#4f7f35", "film": "#b94a35", "pore": "#7b4f9a",
                   "mixed": "#c9901f"}
 _REGIME_MARKERS = {"kinetic": "o", "film": "s", "pore": "D", "mixed": "^"}
-R_GAS = 8.314462618  # J/(mol K), CODATA 2018 exact value
 
 STYLE: dict[str, Any] = {
     "font.family": "DejaVu Sans",
@@ -152,60 +154,15 @@ def display_scale(values: Array, unit: str | None) -> tuple[float, str]:
 
 
 # ---------------------------------------------------------------------------------- pellet
-def eta_first_order(phi: Array, geometry: str) -> Array:
-    """First-order isothermal effectiveness factor in the Aris normalisation (L = Vp/Sp).
-
-    slab: tanh(phi)/phi; infinite cylinder: I1(2 phi)/(phi I0(2 phi)); sphere:
-    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957; REFERENCES.md section 1). Small
-    moduli use the series 1 - c phi^2 (+ next term), c = 1/3, 1/2, 3/5, where the closed forms
-    lose digits; the cylinder uses exponentially scaled Bessel functions.
-    """
-    from scipy.special import i0e, i1e
-
-    phi = np.asarray(phi, dtype=float)
-    out = np.ones_like(phi)
-    small = phi < 1e-2
-    big = ~small & np.isfinite(phi)
-    x = phi[big]
-    if geometry == "slab":
-        out[big] = np.tanh(x) / x
-        s = phi[small]
-        out[small] = 1 - s**2 / 3 + 2 * s**4 / 15
-    elif geometry == "cylinder":
-        out[big] = i1e(2 * x) / (x * i0e(2 * x))
-        s = 2 * phi[small]  # radius form phi_R = 2 phi_L: 1 - x^2/8 + x^4/48
-        out[small] = 1 - s**2 / 8 + s**4 / 48
-    elif geometry == "sphere":
-        out[big] = (1.0 / np.tanh(3 * x) - 1.0 / (3 * x)) / x
-        s = 3 * phi[small]  # radius form phi_R = 3 phi_L: 1 - x^2/15 + 2 x^4/315
-        out[small] = 1 - s**2 / 15 + 2 * s**4 / 315
-    else:
-        raise ValueError(f"geometry '{geometry}' is not one of sphere, cylinder, slab")
-    out[np.isinf(phi)] = 0.0
-    return out
-
-
 def eta_curve(phi: Array, order: float, geometry: str) -> tuple[Array, str]:
     """eta(Phi) for a power law of ``order`` in ``geometry``, and where it came from.
 
-    Uses :func:`kinfit.physics.pellet.effectiveness.eta_power_law` (the fitted model's own pellet solution)
-    when that module is available, else the first-order closed form (exact for order 1, an
-    approximation in the generalised modulus otherwise).
+    Uses :func:`kinfit.physics.pellet.effectiveness.eta_power_law`, the fitted model's own
+    pellet solution.
     """
-    try:
-        from kinfit.physics.pellet.effectiveness import eta_power_law
-
-        eta = np.asarray(eta_power_law(np.asarray(phi, dtype=float),
-                                       np.full(np.shape(phi), float(order)), geometry),
-                         dtype=float)
-        if eta.shape == np.shape(phi) and np.all(np.isfinite(eta)):
-            return eta, f"kinfit's pellet solution, order {order:.3g}, {geometry}"
-    except (ImportError, AttributeError, TypeError, ValueError):
-        pass
-    label = f"first-order closed form, {geometry}"
-    if abs(order - 1.0) > 1e-9:
-        label += f" (approximates order {order:.3g} in the generalised modulus)"
-    return eta_first_order(phi, geometry), label
+    phi = np.asarray(phi, dtype=float)
+    eta = np.asarray(eta_power_law(phi, np.full(phi.shape, float(order)), geometry), dtype=float)
+    return eta, f"kinfit's pellet solution, order {order:.3g}, {geometry}"
 
 
 # ---------------------------------------------------------------------------------- helpers
@@ -402,7 +359,7 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
     T = np.asarray(temperatures, dtype=float)
     lo, hi = float(T.min()) - 8.0, float(T.max()) + 8.0
     Tg = np.linspace(lo, hi, 120)
-    x = -(1.0 / Tg - 1.0 / reference_temperature) / R_GAS
+    x = -(1.0 / Tg - 1.0 / reference_temperature) / GAS_CONSTANT
     k = k_ref * np.exp(activation_energy * x)
     fig = _new_figure(4.6, 3.6)
     ax = fig.add_subplot()

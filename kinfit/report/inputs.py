@@ -22,6 +22,7 @@ from numpy.typing import NDArray
 
 from kinfit.errors import KinfitError, StudyError
 from kinfit.fitting.results import FitResult
+from kinfit.fitting.saved import model_of_fit
 from kinfit.study.load import Study, load_study
 
 __all__ = ["ReportInputs", "load_inputs", "OPTIONAL_FILES", "file_sha256"]
@@ -142,37 +143,12 @@ def _observation_frame(result: FitResult) -> pd.DataFrame:
     })
 
 
-def _rebuild_spec(study: Study, result: FitResult):
-    """The fitted model's spec from the study, the choices in results.json and the saved
-    values of the fixed parameters."""
-    from kinfit.model.compiled import ERROR_SCALE_NAMES, ModelSpec
-
-    m = result.model
-    choice: dict[str, Any] = {"rate_law": m.get("rate_law"), "film": m.get("film"),
-                              "pellet": m.get("pellet")}
-    probe = ModelSpec.from_study(study, **choice, check=False)
-    keep = [n for n in study.parameters if n in probe.parameter_names or n in ERROR_SCALE_NAMES]
-    table = study.parameters.subset(keep)
-    fixed = {n: float(p["estimate"]) for n, p in result.parameters.items()
-             if not p.get("vary", True) and n in table and p.get("estimate") is not None}
-    if fixed:
-        table = table.with_values(fixed)
-    return ModelSpec.from_study(study, **choice, parameters=table,
-                                label=m.get("label") or probe.label)
-
-
 def _curves(study: Study, result: FitResult, obs: pd.DataFrame):
     """Smooth profiles at the estimates, and the check against the saved fitted values."""
-    from kinfit.model.compiled import Model
 
-    spec = _rebuild_spec(study, result)
-    model = Model(spec, study)
-    est = result.estimates()
-    missing = [c for c in model.columns if c not in est]
-    if missing:
-        raise StudyError(f"results.json has no estimate of '{missing[0]}', which the rebuilt "
-                         "model needs; the study changed since the fit: rerun 'kinfit fit'")
-    theta = np.array([est[c] for c in model.columns])[None, :]
+    model, theta1 = model_of_fit(study, result)
+    spec = model.spec
+    theta = theta1[None, :]
     check = None
     if model.n_obs == len(obs):
         pred = np.asarray(model.predict(theta))[0]

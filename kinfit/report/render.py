@@ -10,7 +10,9 @@ import html
 from collections.abc import Callable
 from typing import Any
 
+from kinfit.core.version import __version__
 from kinfit.report.content import Report, Table
+from kinfit.report.equations import equation_svg
 
 __all__ = ["to_markdown", "to_html", "FIGURE_DIR"]
 
@@ -88,7 +90,6 @@ def _equation_renderer() -> Callable[[str], Any]:
     cannot draw it."""
     from markupsafe import Markup
 
-    from kinfit.report.equations import equation_svg
 
     cache: dict[str, Any] = {}
 
@@ -114,7 +115,6 @@ def to_html(report: Report) -> str:
                              autoescape=True, trim_blocks=True, lstrip_blocks=True,
                              undefined=jinja2.StrictUndefined)
     template = env.get_template("report.html.j2")
-    from kinfit import __version__
 
     return template.render(
         report=report, version=__version__, equation=_equation_renderer(),

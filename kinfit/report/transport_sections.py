@@ -8,7 +8,7 @@ exist; every optional field is read with a default.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -31,15 +31,13 @@ from kinfit.report.content import (
     fmt_p,
     get_path,
 )
+from kinfit.report.context import ReportContext
 from kinfit.report.equations import EQUATIONS
-
-if TYPE_CHECKING:
-    from kinfit.report.builder import ReportBuilder
 
 __all__ = ["transport_section", "posterior_section"]
 
 
-def _thresholds(rb: ReportBuilder) -> tuple[dict[str, float], dict[str, str]]:
+def _thresholds(rb: ReportContext) -> tuple[dict[str, float], dict[str, str]]:
     diag = rb.inp.diagnosis or {}
     first = next(iter(rb.res.runs.values()), {})
     limits = dict(first.get("thresholds") or {})
@@ -49,7 +47,7 @@ def _thresholds(rb: ReportBuilder) -> tuple[dict[str, float], dict[str, str]]:
     sources.update({k: str(v) for k, v in (diag.get("sources") or {}).items()})
     return limits, sources
 
-def transport_section(rb: ReportBuilder) -> Section:
+def transport_section(rb: ReportContext) -> Section:
     """The transport diagnosis: per-run criteria and regime with thresholds and sources,
     regime map, effectiveness factor, kinetics and (when present) the diagnosis file."""
     res, diag = rb.res, rb.inp.diagnosis or {}
@@ -129,7 +127,7 @@ def transport_section(rb: ReportBuilder) -> Section:
     blocks += _diagnosis_blocks(rb, diag)
     return Section("transport", "Transport diagnosis", tuple(blocks))
 
-def _order(rb: ReportBuilder) -> float:
+def _order(rb: ReportContext) -> float:
     p = rb.res.parameters.get("order")
     if p and p.get("estimate") is not None:
         return float(p["estimate"])
@@ -137,7 +135,7 @@ def _order(rb: ReportBuilder) -> float:
               if isinstance(r.get("order"), int | float)]
     return float(np.median(orders)) if orders else 1.0
 
-def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Table:
+def _regime_probability(rb: ReportContext, post_runs: Mapping[str, Any]) -> Table:
     rows: list[Sequence[str]] = []
     tones: list[list[str | None]] = []
     for rid, pr in post_runs.items():
@@ -150,7 +148,7 @@ def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Tabl
                       "evaluated draws).", ["run", *REGIMES], rows, tones=tones,
                       numeric=(False,) + (True,) * len(REGIMES))
 
-def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
+def _kinetics_blocks(rb: ReportContext, diag: Mapping[str, Any]) -> list[Any]:
     params, m = rb.res.parameters, rb.res.model
     k_ref, ea = params.get("k_ref"), params.get("activation_energy")
     t_ref = get_path(m, "rate_law_options", "reference_temperature")
@@ -218,7 +216,7 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
             blocks.append(Items(tuple(map(str, fals["warnings"])), "warning"))
     return blocks
 
-def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
+def _diagnosis_blocks(rb: ReportContext, diag: Mapping[str, Any]) -> list[Any]:
     blocks: list[Any] = []
     tests = [t for t in diag.get("model_free") or [] if isinstance(t, Mapping)]
     if tests or diag.get("not_possible"):
@@ -262,7 +260,7 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
                                  numeric=(True, True, True, False)))
     return blocks
 
-def posterior_section(rb: ReportBuilder) -> Section | None:
+def posterior_section(rb: ReportContext) -> Section | None:
     """The posterior: sampler settings, convergence, summary, corner plot and traces."""
     post, draws = rb.inp.posterior, rb.inp.draws
     if not post and draws is None:

@@ -18,6 +18,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.errors import StudyError
+from kinfit.physics.geometry import GEOMETRIES
 from kinfit.study.parameters import ParameterTable, parameter_table_from_toml
 from kinfit.core.units import parse_header, parse_quantity, printable, to_si
 
@@ -44,7 +45,6 @@ OBS_COLUMNS: dict[str, str] = {
 #: the factors a campaign varies and that the classic transport tests compare
 FACTORS = ("temperature", "stirrer_speed", "particle_diameter", "catalyst_loading",
            "initial_concentration")
-GEOMETRIES = ("sphere", "cylinder", "slab")
 
 
 def _frozen(a: Any) -> NDArray[np.float64]:

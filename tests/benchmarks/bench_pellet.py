@@ -29,7 +29,9 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from pellet_reference import power_law_reference, reference_eta  # noqa: E402
 
-from kinfit.physics.pellet.effectiveness import eta_first_order, eta_power_law, pellet_eta  # noqa: E402
+from kinfit.physics.pellet.effectiveness import eta_first_order, eta_power_law  # noqa: E402
+
+from kinfit.physics.pellet.numerical import pellet_eta
 
 __all__ = ["main"]
 

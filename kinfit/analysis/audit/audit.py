@@ -35,9 +35,7 @@ signature), "not testable with these data" (with what is missing).
 
 from __future__ import annotations
 
-import argparse
 import math
-import sys
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
@@ -49,6 +47,24 @@ from numpy.typing import NDArray
 from scipy import stats
 
 from kinfit.analysis.audit.lh_signatures import lh_local, lh_signatures, pore_not_tested
+from kinfit.analysis.audit.limits import (
+    FILM_EA_LIMIT,
+    LEVEL,
+    LH_SOURCES,
+    ORDER_TOLERANCE,
+    PORE_EA_RATIO,
+    SOURCES,
+)
+from kinfit.analysis.audit.markdown import markdown
+from kinfit.core.files import (
+    manifest,
+    to_plain,
+    write_json_atomic,
+    write_text_atomic,
+)
+from kinfit.fitting.fit import FitOptions, fit_model
+from kinfit.model.compiled import Model, ModelSpec
+from kinfit.physics.criteria import Thresholds, compute_criteria
 from kinfit.study.claims import (  # noqa: F401 - re-exported for callers of the audit
     BASES,
     Claim,
@@ -60,45 +76,12 @@ from kinfit.study.claims import (  # noqa: F401 - re-exported for callers of the
     _transport_table,
     load_claims,
 )
-from kinfit.physics.criteria import THRESHOLD_SOURCES, Thresholds, compute_criteria
-from kinfit.model.compiled import Model, ModelSpec
-from kinfit.study.parameters import parameter_table_from_toml
 from kinfit.study.load import FACTORS, Study
+from kinfit.study.parameters import ParameterTable, parameter_table_from_toml
 
-__all__ = ["Claim", "ClaimFile", "ClaimAudit", "AuditResult", "VERDICTS", "SOURCES",
-           "FILM_EA_LIMIT", "load_claims", "audit_claims", "add_audit_arguments",
-           "run_audit_command"]
+__all__ = ['Claim', 'ClaimFile', 'ClaimAudit', 'AuditResult', 'load_claims', 'audit_claims']
 
 Array = NDArray[np.float64]
-VERDICTS = ("consistent with intrinsic kinetics", "transport-contaminated",
-            "not reproduced by the data", "not testable with these data")
-#: apparent activation energy below which film control is suspected, J/mol (common practice)
-FILM_EA_LIMIT = 15e3
-#: claimed/intrinsic activation-energy ratio counted as "about half"
-PORE_EA_RATIO = (0.35, 0.70)
-#: tolerance on the apparent order (n + 1)/2 and on "first order"
-ORDER_TOLERANCE = 0.15
-LEVEL = 0.95
-SOURCES = {
-    **THRESHOLD_SOURCES,
-    "likelihood_ratio": "LR = n ln(S(theta_claim)/S_hat) against chi2 with p degrees of "
-                        "freedom, Gaussian errors with the variance profiled out (Bates & Watts "
-                        "1988, ch. 6)",
-    "joint_region": "S(theta) <= S_hat [1 + p/(n-p) F(p, n-p; 0.95)] (Beale 1960; Bates & "
-                    "Watts 1988)",
-    "pore_signature": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
-                      "(Weisz & Prater 1954; Satterfield 1970)",
-    "film_signature": "film control: apparent activation energy near zero (below about "
-                      "15 kJ/mol) and first apparent order (common practice)",
-}
-#: sources added to audit.json when a claim is Langmuir-Hinshelwood
-LH_SOURCES = {
-    "lh_apparent_order": "local apparent order of r = k K C/(1 + K C)^m: d ln r/d ln C = "
-                         "1 - m K C/(1 + K C) (derived from the rate law)",
-    "lh_apparent_activation_energy": "E_app = -R d ln r/d(1/T) = Ea + n_app dH_ads with "
-                                     "Arrhenius k and van 't Hoff K (derived from the rate "
-                                     "law)",
-}
 
 
 # ------------------------------------------------------------------------------ the audit
@@ -169,7 +152,6 @@ class AuditResult:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of audit.json."""
-        from kinfit.core.files import to_plain
 
         lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
         return to_plain({"kinfit_audit": 1, "claim_file": str(self.path), "title": self.title,
@@ -180,14 +162,12 @@ class AuditResult:
 
     def markdown(self) -> str:
         """The short audit report (audit.md)."""
-        from kinfit.analysis.audit.markdown import markdown
 
         lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
         return markdown(self, {**SOURCES, **LH_SOURCES} if lh else SOURCES)
 
     def save(self, folder: str | Path) -> Path:
         """Write audit.json and audit.md atomically into ``folder``."""
-        from kinfit.core.files import write_json_atomic, write_text_atomic
 
         folder = Path(folder)
         write_text_atomic(folder / "audit.md", self.markdown())
@@ -195,7 +175,6 @@ class AuditResult:
 
 
 def _fixed(table):
-    from kinfit.study.parameters import ParameterTable
 
     return ParameterTable([replace(table[n], vary=False) for n in table])
 
@@ -267,7 +246,6 @@ def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
 
 def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
     """Refit the kinetics of one model and test the claimed values against the optimum."""
-    from kinfit.fitting.fit import FitOptions, fit_model
 
     kinetic = list(claim.values())
     names = [n for n in kinetic if table[n].vary]
@@ -307,7 +285,6 @@ def _kinetic_table(built: _Built, cf: ClaimFile, claim: Claim, *, transport: boo
     table = (_transport_table(built, cf, claim) if transport else
              parameter_table_from_toml(claim.parameter_section(), cf.path.name))
     study = built.study
-    from kinfit.study.parameters import ParameterTable
 
     fix = set()
     if len({round(r.temperature, 6) for r in study.runs}) < 2:
@@ -586,7 +563,6 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
     """
     cf = path if isinstance(path, ClaimFile) else load_claims(path)
     thresholds = thresholds or Thresholds()
-    from kinfit.core.files import manifest
 
     files = {str(cf.path): _sha256(cf.path)}
     if cf.data is not None:
@@ -603,31 +579,5 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
 
 
 # ------------------------------------------------------------------------------ command line
-def add_audit_arguments(parser: argparse.ArgumentParser) -> None:
-    """Options of ``kinfit audit CLAIM [--out DIR]``."""
-    parser.add_argument("claim", type=Path, help="the claim file (TOML)")
-    parser.add_argument("--out", type=Path, default=Path("reports") / "audit",
-                        help="output folder (default: reports/audit)")
-    parser.add_argument("--require-consistent", action="store_true",
-                        help="exit 1 unless every claim is consistent with intrinsic kinetics")
 
 
-def run_audit_command(args: argparse.Namespace) -> int:
-    """Run ``kinfit audit``; returns the exit code."""
-    from kinfit.core.files import prepare_out_dir
-
-    result = audit_claims(args.claim)
-    result = replace(result, manifest={**result.manifest, "command": list(sys.argv)})
-    out = prepare_out_dir(args.out)
-    result.save(out)
-    for c in result.claims:
-        print(f"{c.name}: {c.verdict}")
-        for e in c.evidence:
-            print(f"  - {e}")
-        for m in c.missing:
-            print(f"  missing: {m}")
-    print(f"\nwrote {out / 'audit.json'} and {out / 'audit.md'}")
-    if args.require_consistent and any(c.verdict != VERDICTS[0] for c in result.claims):
-        print("kinfit: not every claim is consistent with intrinsic kinetics", file=sys.stderr)
-        return 1
-    return 0

@@ -28,6 +28,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from kinfit.analysis.audit.limits import FILM_EA_LIMIT, ORDER_TOLERANCE, PORE_EA_RATIO
+from kinfit.physics.kinetics.arrhenius import van_t_hoff
 from kinfit.study.claims import Claim
 
 __all__ = ["lh_local", "strong_pore_apparent", "lh_signatures", "pore_not_tested"]
@@ -49,8 +51,6 @@ def lh_local(claim: Claim, T: ArrayLike, C: ArrayLike) -> tuple[Array, Array]:
 
 
 def _adsorption_constant(K_ref: float, dH: float, T: ArrayLike, T_ref: float) -> Array:
-    from kinfit.physics.kinetics.base import van_t_hoff
-
     return np.asarray(van_t_hoff(K_ref, dH, np.asarray(T, dtype=float), T_ref), dtype=float)
 
 
@@ -97,7 +97,7 @@ def lh_signatures(claim: Claim, crit: dict[str, Any], transport_fit: dict[str, A
     apparent activation energy and order at the test conditions; pore control by comparing the
     claimed law's apparent Ea and order at the runs the transport-aware refit puts in the pore
     regime with what strong pore diffusion makes of the refitted intrinsic law there."""
-    from kinfit.analysis.audit.audit import FILM_EA_LIMIT, ORDER_TOLERANCE, PORE_EA_RATIO
+
 
     runs = crit["runs"]
     ids = list(runs)

@@ -9,6 +9,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
+from kinfit.study.conditions import display
+
 __all__ = ["markdown", "is_lh"]
 
 
@@ -62,7 +64,6 @@ def _summary(claims: Any) -> list[str]:
 
 
 def _criteria(c: Any) -> list[str]:
-    from kinfit.study.conditions import display
 
     lh = is_lh(c.values)
     lines = ["### Criteria at the test conditions", "",

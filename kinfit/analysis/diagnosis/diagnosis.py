@@ -9,7 +9,6 @@ and which stirrer speed and particle size would make the runs intrinsic.
 
 from __future__ import annotations
 
-import argparse
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -18,18 +17,19 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
 from kinfit.analysis.diagnosis.falsified import FalsifiedResult, falsified_kinetics
 from kinfit.analysis.diagnosis.model_free import FactorTest, NotPossible, model_free_tests
 from kinfit.analysis.diagnosis.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next_runs
 from kinfit.analysis.diagnosis.per_run import N_DRAWS, posterior_matrix, run_diagnostics
+from kinfit.core.files import prepare_out_dir, to_plain, write_json_atomic
 from kinfit.errors import StudyError
-from kinfit.model.compiled import Model
+from kinfit.fitting.fit import FitOptions, fit_model, main_spec
 from kinfit.fitting.results import FitResult
+from kinfit.fitting.saved import model_of_fit
+from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
 from kinfit.study.load import Study
 
-__all__ = ["Diagnosis", "diagnose", "model_for_fit", "read_draws", "add_diagnose_arguments",
-           "run_diagnose_command", "DIAGNOSIS_VERSION", "SOURCES", "DRAWS_FILE"]
+__all__ = ['Diagnosis', 'diagnose', 'read_draws', 'DIAGNOSIS_VERSION', 'SOURCES', 'DRAWS_FILE']
 
 Array = NDArray[np.float64]
 DIAGNOSIS_VERSION = 1
@@ -115,7 +115,6 @@ class Diagnosis:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of diagnosis.json (SI values; ``units`` names them)."""
-        from kinfit.core.files import to_plain
 
         return to_plain({
             "kinfit_diagnosis": DIAGNOSIS_VERSION,
@@ -136,7 +135,6 @@ class Diagnosis:
 
     def save(self, folder: str | Path) -> Path:
         """Write ``folder/diagnosis.json`` atomically; returns its path."""
-        from kinfit.core.files import prepare_out_dir, write_json_atomic
 
         return write_json_atomic(prepare_out_dir(folder) / "diagnosis.json", self.to_dict())
 
@@ -216,40 +214,6 @@ class Diagnosis:
 
 
 # ----------------------------------------------------------------------------- orchestration
-def model_for_fit(study: Study, fit_result: FitResult) -> tuple[Model, Array]:
-    """The study's model and the fitted values of its varying columns.
-
-    Parameters
-    ----------
-    study : Study
-    fit_result : FitResult
-        A fit of the study's own model (``estimates()`` gives column -> value).
-
-    Returns
-    -------
-    model : Model
-    theta : ndarray, shape (p,)
-        Fitted values in the order of ``model.columns``.
-
-    Raises
-    ------
-    StudyError
-        When the fit lacks a varying parameter of the study's model (a fit of another model
-        or of an edited study).
-    """
-    from kinfit.fitting.fit import main_spec
-
-    model = Model(main_spec(study), study)
-    est = fit_result.estimates()
-    missing = [c for c in model.columns if c not in est]
-    if missing:
-        raise StudyError(
-            f"the fit results have no estimate of '{missing[0]}', which the study's model "
-            f"varies; they hold {sorted(est)}; refit with 'kinfit fit {study.path}'"
-        )
-    return model, np.array([est[c] for c in model.columns], dtype=float)
-
-
 def _intrinsic(fit_result: FitResult, runs: Mapping[str, Mapping[str, Any]]
                ) -> tuple[float | None, float | None, float | None]:
     p = fit_result.parameters
@@ -320,7 +284,6 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     StudyError
         Bad options, or a fit or posterior that does not match the study's model.
     """
-    from kinfit.fitting.fit import FitOptions, fit_model, main_spec
 
     if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
         raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
@@ -354,7 +317,7 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     if not fit_result.converged:
         notes.append("the fit did not converge: the model-based numbers are at its last "
                      f"iterate ({fit_result.fit.get('message', '')})")
-    model, theta = model_for_fit(study, fit_result)
+    model, theta = model_of_fit(study, fit_result)
     if posterior is None and posterior_dir is not None:
         path = Path(posterior_dir) / DRAWS_FILE
         if path.is_file():
@@ -391,45 +354,6 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
 
 
 # ----------------------------------------------------------------------------- command line
-def add_diagnose_arguments(parser: argparse.ArgumentParser) -> None:
-    """Options of ``kinfit diagnose STUDY [--fit DIR] [--out DIR] ...``.
-
-    Parameters
-    ----------
-    parser : argparse.ArgumentParser
-        The subcommand's parser; the positional ``study`` and every option are added to it.
-    """
-    parser.add_argument("study", type=Path, help="the study file (TOML)")
-    parser.add_argument("--fit", type=Path, default=None, metavar="DIR",
-                        help="use the fit saved in DIR/results.json (default: fit first)")
-    parser.add_argument("--draws", type=Path, default=None, metavar="CSV",
-                        help="posterior draws, one column per varying parameter: adds "
-                             "intervals and regime probabilities (default: DIR/"
-                             f"{DRAWS_FILE} of --fit when present)")
-    parser.add_argument("--out", type=Path, default=Path("reports"),
-                        help="output folder for diagnosis.json (default: reports)")
-    parser.add_argument("--alpha", type=float, default=0.05,
-                        help="significance level of the model-free tests (default 0.05)")
-    parser.add_argument("--carberry", type=float, default=0.05, metavar="LIMIT",
-                        help="Carberry limit times |n| (default 0.05: Ca < 0.05/|n|)")
-    parser.add_argument("--weisz-prater", type=float, default=0.3, metavar="LIMIT",
-                        help="Weisz-Prater limit with R = dp/2 (default 0.3)")
-    parser.add_argument("--mears", type=float, default=0.15, metavar="LIMIT",
-                        help="Mears limit (default 0.15)")
-    parser.add_argument("--min-effectiveness", type=float, default=0.95, metavar="ETA",
-                        help="smallest effectiveness factor counted as kinetic (default 0.95)")
-    parser.add_argument("--max-speed", default="3000 rpm", metavar="SPEED",
-                        help="highest stirrer speed considered for next runs (default "
-                             "'3000 rpm')")
-    parser.add_argument("--n-draws", type=int, default=N_DRAWS, metavar="N",
-                        help=f"posterior draws evaluated (default {N_DRAWS})")
-    parser.add_argument("--seed", type=int, default=0, help="seed of the draw subsample")
-
-
-def _positive(name: str, value: float) -> float:
-    if not (np.isfinite(value) and value > 0):
-        raise StudyError(f"--{name} must be a number > 0, got {value}")
-    return float(value)
 
 
 def read_draws(path: str | Path) -> dict[str, Array]:
@@ -472,55 +396,3 @@ def read_draws(path: str | Path) -> dict[str, Array]:
     return out
 
 
-def run_diagnose_command(args: argparse.Namespace) -> int:
-    """Run ``kinfit diagnose``: print the report and write diagnosis.json.
-
-    Parameters
-    ----------
-    args : argparse.Namespace
-        Parsed by a parser set up with :func:`add_diagnose_arguments`.
-
-    Returns
-    -------
-    int
-        0 done; 1 the fit did not converge (the diagnosis is written all the same).
-
-    Raises
-    ------
-    StudyError
-        Bad input (the command line maps it to exit code 2).
-    """
-    import sys
-
-    from kinfit.core.files import prepare_out_dir
-    from kinfit.study.load import load_study
-    from kinfit.core.units import parse_quantity
-
-    study = load_study(args.study)
-    thresholds = Thresholds(
-        carberry=_positive("carberry", args.carberry),
-        weisz_prater_radius=_positive("weisz-prater", args.weisz_prater),
-        mears=_positive("mears", args.mears),
-        effectiveness=_positive("min-effectiveness", args.min_effectiveness),
-    )
-    if thresholds.effectiveness > 1:
-        raise StudyError(f"--min-effectiveness must be in (0, 1], got {args.min_effectiveness}")
-    top = parse_quantity(args.max_speed, "speed", where="--max-speed")
-    if not top > SPEED_RANGE[0]:
-        raise StudyError(f"--max-speed must exceed {SPEED_RANGE[0] * 60:g} rpm, got "
-                         f"'{args.max_speed}'")
-    fit_result = FitResult.load(args.fit) if args.fit is not None else None
-    posterior = read_draws(args.draws) if args.draws is not None else None
-    out = prepare_out_dir(args.out)
-    diag = diagnose(study, fit_result, posterior=posterior, posterior_dir=args.fit,
-                    thresholds=thresholds,
-                    alpha=args.alpha, n_draws=args.n_draws, seed=args.seed,
-                    speed_range=(SPEED_RANGE[0], top))
-    path = diag.save(out)
-    print(diag.report())
-    print(f"\nwrote {path}")
-    if not diag.model.get("converged", True):
-        print("kinfit: the fit did not converge; the model-based part is at its last iterate",
-              file=sys.stderr)
-        return 1
-    return 0

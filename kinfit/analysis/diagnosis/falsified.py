@@ -26,10 +26,10 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import optimize, stats
 
+from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
 from kinfit.study.load import Run, Study
 
 __all__ = [
-    "GAS_CONSTANT",
     "ArrheniusFit",
     "ApparentGroup",
     "FalsifiedResult",
@@ -40,8 +40,6 @@ __all__ = [
 ]
 
 Array = NDArray[np.float64]
-#: molar gas constant, J/(mol K) (exact in the 2019 SI: N_A k_B)
-GAS_CONSTANT = 8.314462618
 
 
 @dataclass(frozen=True)

@@ -24,8 +24,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from kinfit.physics.criteria import Thresholds
 from kinfit.model.compiled import Model
+from kinfit.physics.criteria import Thresholds
 
 __all__ = ["NextRun", "next_runs", "SPEED_RANGE", "DIAMETER_RANGE"]
 

@@ -17,10 +17,10 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from kinfit.physics.criteria import REGIMES, Thresholds
 from kinfit.errors import KinfitError, StudyError
 from kinfit.model.compiled import Model
 from kinfit.model.simulation import run_table
+from kinfit.physics.criteria import REGIMES, Thresholds
 
 __all__ = ["PerRunResult", "posterior_matrix", "run_diagnostics", "CRITERIA", "N_DRAWS"]
 

@@ -28,9 +28,9 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.constants import R as GAS_CONSTANT
 
 from kinfit.errors import StudyError
+from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
 
 __all__ = [
     "compile_expression",

@@ -69,6 +69,7 @@ from scipy.interpolate import RectBivariateSpline
 from scipy.special import i0e, i1e
 
 from kinfit.errors import ModelError, StudyError
+from kinfit.physics.pellet.numerical import pellet_eta
 
 __all__ = [
     "BETA_MAX",
@@ -211,7 +212,7 @@ def solve_log_correction(x: Array, t: Array, m: int, geometry: str, *,
                          n_grid: int = _N_GRID) -> Array:
     """F = ln eta - ln eta_1 at Phi = 10^x, beta = e^t - 1 by the numerical pellet solver
     (arrays of one shape); used for the nodes and by the tests for off-node checks."""
-    from kinfit.physics.pellet.effectiveness import pellet_eta
+
 
     a = SHAPES[geometry]
     x, t = np.broadcast_arrays(np.asarray(x, dtype=float), np.asarray(t, dtype=float))

@@ -49,6 +49,7 @@ from numpy.typing import NDArray
 from scipy.interpolate import make_interp_spline
 
 from kinfit.errors import SolverError
+from kinfit.physics.geometry import GEOMETRIES
 
 
 def _solve_ivp(*args, **kwargs):
@@ -70,7 +71,7 @@ __all__ = [
 Array = NDArray[Any]          # float, index and mask arrays alike
 
 #: Shape index a of the pellet equation u'' + (a/xi) u' = phi^2 u^n for each geometry name.
-SHAPE_INDEX = {"slab": 0, "cylinder": 1, "sphere": 2}
+SHAPE_INDEX = {g: i for i, g in enumerate(GEOMETRIES)}
 _RTOL = 1e-12
 _LN10 = np.log(10.0)
 #: Table grids as (first, last, step): log10 Phi and orders of the ``high`` table, orders of the

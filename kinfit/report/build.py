@@ -1,23 +1,30 @@
 """``kinfit report``: build the report of a saved fit and write it (HTML, Markdown, figures as
 PNG and SVG, tables as CSV, the parameter table as LaTeX, and the report's own manifest), every
-file atomically. The command line registers :func:`add_report_arguments` and calls
-:func:`run_report_command`; notebooks call :func:`build_report`.
+file atomically. The command line (:mod:`kinfit.cli.report`) and notebooks call
+:func:`build_report`.
 """
 
 from __future__ import annotations
 
-import argparse
-import sys
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
 
-if TYPE_CHECKING:  # the heavy modules load when a report is built, not when the CLI starts
-    from kinfit.report.content import Report
-    from kinfit.study.load import Study
+from kinfit.core.files import (
+    manifest,
+    prepare_out_dir,
+    write_bytes_atomic,
+    write_frame_atomic,
+    write_json_atomic,
+    write_text_atomic,
+)
+from kinfit.report.builder import build_content
+from kinfit.report.content import Report
+from kinfit.report.inputs import load_inputs
+from kinfit.report.render import FIGURE_DIR, to_html, to_markdown
+from kinfit.study.load import Study
 
-__all__ = ["ReportResult", "build_report", "add_report_arguments", "run_report_command"]
+__all__ = ['ReportResult', 'build_report']
 
 
 @dataclass(frozen=True)
@@ -93,17 +100,6 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
     --------
     >>> build_report("examples/demo/study.toml", "reports/demo", "reports/demo")  # doctest: +SKIP
     """
-    from kinfit.core.files import (
-        manifest,
-        prepare_out_dir,
-        write_bytes_atomic,
-        write_frame_atomic,
-        write_json_atomic,
-        write_text_atomic,
-    )
-    from kinfit.report.builder import build_content
-    from kinfit.report.inputs import load_inputs
-    from kinfit.report.render import FIGURE_DIR, to_html, to_markdown
 
     inputs = load_inputs(study, fit_dir)
     out = prepare_out_dir(out_dir)
@@ -128,26 +124,3 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
                         notes=report.notes, report=report)
 
 
-def add_report_arguments(parser: argparse.ArgumentParser) -> None:
-    """Arguments of ``kinfit report STUDY [--fit DIR] --out DIR``."""
-    parser.add_argument("study", type=Path, help="the study file (TOML) the fit was made from")
-    parser.add_argument("--fit", type=Path, default=None, metavar="DIR",
-                        help="folder with results.json from 'kinfit fit' (default: --out)")
-    parser.add_argument("--out", type=Path, default=Path("reports"), metavar="DIR",
-                        help="output folder of the report (default: reports)")
-
-
-def run_report_command(args: argparse.Namespace) -> int:
-    """Run ``kinfit report`` from parsed arguments; returns the exit code (0 when the report
-    was written; errors of input raise StudyError, which the command line maps to exit 2)."""
-    from kinfit.report.render import FIGURE_DIR
-
-    fit_dir = args.fit if args.fit is not None else args.out
-    result = build_report(args.study, fit_dir, args.out, argv=sys.argv)
-    print(f"wrote {result.html}, {result.markdown}, {len(result.figures)} figure files in "
-          f"{result.out_dir / FIGURE_DIR}, {len(result.tables)} CSV tables, {result.latex.name}")
-    for note in result.notes:
-        print(f"kinfit: note: {note}", file=sys.stderr)
-    if not result.report.status_ok:
-        print("kinfit: the report documents a fit that did not converge", file=sys.stderr)
-    return 0

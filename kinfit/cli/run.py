@@ -1,0 +1,72 @@
+"""kinfit run: the whole job (check, fit, sample, diagnose, report)."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from kinfit.analysis.diagnosis.diagnosis import diagnose
+from kinfit.cli.common import EXIT_FAILED, EXIT_INTERRUPTED, EXIT_OK, add_common
+from kinfit.core.files import prepare_out_dir
+from kinfit.fitting.fit import FitOptions, fit
+from kinfit.fitting.posterior import SampleOptions, sample_study
+from kinfit.report.build import build_report
+from kinfit.study.campaign import campaign_summary
+from kinfit.study.load import load_study
+
+__all__ = ["add_arguments", "run"]
+
+
+def run(args: argparse.Namespace) -> int:
+    """The whole job: check, fit, sample (until converged or the step cap), diagnose, report."""
+    import time
+
+
+    t0 = time.perf_counter()
+
+    def step(text: str) -> None:
+        print(f"[{time.perf_counter() - t0:6.1f} s] {text}", flush=True)
+
+    step(f"checking {args.study}")
+    study = load_study(args.study)
+    print(campaign_summary(study))
+    out = prepare_out_dir(args.out)
+    step("fitting all runs jointly (least squares, profile-likelihood intervals)")
+    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
+                                   progress=not args.quiet), argv=sys.argv)
+    result.save(out)
+    print(result.report())
+    code = EXIT_OK if result.converged else EXIT_FAILED
+    if args.steps > 0:
+        step(f"sampling the posterior ({args.steps} steps at most)")
+        post, _ = sample_study(study, result, out, SampleOptions(
+            max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
+            progress=not args.quiet), argv=sys.argv)
+        print(post.report())
+        if post.interrupted:
+            # what was sampled is checkpointed; the report is still written from it
+            code = EXIT_INTERRUPTED
+    step("diagnosing transport run by run")
+    diagnosis = diagnose(study, result, posterior_dir=out)
+    diagnosis.save(out)
+    print(diagnosis.report())
+    step("writing the report")
+    written = build_report(study, out, out, argv=sys.argv)
+    step(f"done: {written.html}")
+    if code == EXIT_INTERRUPTED:
+        print("kinfit: sampling was interrupted; the report shows the chain so far. To go on: "
+              f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
+              f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
+              file=sys.stderr)
+    return code
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    add_common(p, out=True)
+    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
+    p.add_argument("--multistart", type=int, default=0, metavar="N",
+                   help="extra least-squares starts")
+    p.add_argument("--steps", type=int, default=10000,
+                   help="posterior step cap; sampling stops earlier once converged (0: no "
+                        "sampling; default 10000)")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")

@@ -1,0 +1,59 @@
+"""kinfit sample: sample the posterior from the fit's optimum."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from kinfit.cli.common import EXIT_FAILED, EXIT_INTERRUPTED, EXIT_OK
+from kinfit.core.files import prepare_out_dir
+from kinfit.errors import StudyError
+from kinfit.fitting.posterior import SampleOptions, sample_study
+from kinfit.fitting.results import FitResult
+from kinfit.study.load import load_study
+
+__all__ = ["add_arguments", "run"]
+
+
+def run(args: argparse.Namespace) -> int:
+    study = load_study(args.study)
+    fit_dir = args.fit or args.out
+    if fit_dir is None:
+        raise StudyError("give --fit DIR (the folder of 'kinfit fit' results)")
+    fit = FitResult.load(fit_dir)
+    out = prepare_out_dir(args.out or fit_dir)
+    options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
+                            tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
+                            progress=not args.quiet, moves=args.moves)
+    post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    print(post.report())
+    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
+    if post.interrupted:
+        print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
+              file=sys.stderr)
+        return EXIT_INTERRUPTED
+    if args.require_converged and not post.converged:
+        print(f"kinfit: the chain did not converge: {post.verdict}", file=sys.stderr)
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("study", type=Path, help="the study file (TOML)")
+    p.add_argument("--fit", type=Path, default=None,
+                   help="folder with results.json from 'kinfit fit' (default: --out)")
+    p.add_argument("--out", type=Path, default=None,
+                   help="output folder (default: the --fit folder)")
+    p.add_argument("--walkers", type=int, default=None, help="ensemble size")
+    p.add_argument("--steps", type=int, default=20000, help="step cap (default 20000)")
+    p.add_argument("--chunk", type=int, default=500, help="steps between checkpoints")
+    p.add_argument("--tau-multiple", type=float, default=50.0,
+                   help="stop when the chain exceeds this many autocorrelation times")
+    p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
+    p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
+    p.add_argument("--moves", choices=("de", "stretch"), default="de",
+                   help="proposal: differential-evolution move (default) or stretch move")
+    p.add_argument("--require-converged", action="store_true",
+                   help="exit 1 when the chain has not converged")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
