@@ -23,7 +23,8 @@ from kinfit.model.compiled import Model, ModelSpec
 from kinfit.model.simulation import simulate
 from kinfit.physics.criteria import Thresholds
 from kinfit.report.build import build_report
-from kinfit.study.load import Run, Study, load_study
+from kinfit.study.load import load_study
+from kinfit.study.runs import Run, Study
 
 __all__ = [
     "__version__", "load_study", "Study", "Run", "ModelSpec", "Model", "fit", "FitOptions",

@@ -21,13 +21,8 @@ from studies import profile_rows, profiles_csv, runs_csv, simulate, study_text, 
 from kinfit.physics.criteria import Thresholds
 from kinfit.analysis.diagnosis.falsified import arrhenius_regression, falsified_kinetics, power_law_profile
 from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
-from kinfit.analysis.diagnosis.model_free import (
-    _fit_levels,
-    compare_rates,
-    extra_sum_of_squares,
-    model_free_tests,
-    spline_design,
-)
+from kinfit.analysis.diagnosis.model_free import compare_rates, model_free_tests
+from kinfit.analysis.diagnosis.level_tests import _fit_levels, extra_sum_of_squares, spline_design
 from kinfit.analysis.diagnosis.next_runs import next_runs
 from kinfit.analysis.diagnosis.per_run import posterior_matrix
 from kinfit.fitting.saved import model_of_fit
@@ -39,7 +34,8 @@ from kinfit.fitting.fit import FitOptions, fit
 from kinfit.model.compiled import Model, ModelSpec
 from kinfit.fitting.results import FitResult
 from kinfit.model.simulation import run_table
-from kinfit.study.load import comparison_sets, load_study
+from kinfit.study.load import load_study
+from kinfit.study.runs import comparison_sets
 
 
 # ----------------------------------------------------------------------------- synthetic studies
@@ -167,7 +163,7 @@ def test_rate_comparison_without_replicates_is_not_possible(tmp_path):
 def test_profile_test_keeps_its_false_alarm_rate():
     # identical first-order profiles with noise: the F test must reject in about alpha of the
     # cases (the definition of a level-alpha test; binomial 99.9 % bound for 400 trials)
-    from kinfit.analysis.diagnosis.model_free import _select_basis
+    from kinfit.analysis.diagnosis.level_tests import _select_basis
 
     rng = np.random.default_rng(11)
     rejections = 0

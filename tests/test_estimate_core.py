@@ -20,13 +20,15 @@ import statsmodels.api as sm
 from scipy.optimize import minimize
 from scipy.stats import t as student_t
 
-import kinfit.estimate.least_squares as lsq
+import kinfit.estimate.evaluation as evaluation
+import kinfit.estimate.solve as lsq_solve
 from kinfit.errors import ConvergenceWarning, StudyError
 from kinfit.estimate.compare import compare_fits
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.problem import PENALTY, ErrorModel, Problem, Space
 from kinfit.estimate.statistics import fit_statistics, ml_error_scales
-from kinfit.estimate.uncertainty import bootstrap, linearised_intervals, profile_intervals
+from kinfit.estimate.uncertainty import linearised_intervals, profile_intervals
+from kinfit.estimate.bootstrap import bootstrap
 from kinfit.estimate.identifiability import identifiability
 
 
@@ -224,8 +226,8 @@ def test_central_differences_at_a_bound_are_one_sided_second_order() -> None:
     space = Space(("a", "b"), np.array([-1.0, -1.0]), np.array([1.0, 0.5]), ("none", "none"))
     problem = Problem(quad, x, space, np.array([0.0, 0.5]))
     u = np.array([0.3, 0.5])  # b on its upper bound
-    ev = lsq.Evaluator(problem)
-    d = lsq.jacobian_internal(problem, ev, u, central=True)
+    ev = evaluation.Evaluator(problem)
+    d = evaluation.jacobian_internal(problem, ev, u, central=True)
     np.testing.assert_allclose(d, np.column_stack([x, np.full(5, 2 * 0.5)]), rtol=1e-9, atol=1e-10)
     assert ev.n_calls == 1  # one batched call of 2p + 1 rows
 
@@ -235,7 +237,7 @@ def test_nan_region_is_penalised_never_passed_to_the_optimiser(monkeypatch) -> N
     the optimiser only ever sees finite residuals and Jacobians, a trial step into the NaN
     region is rejected, and the fit still reaches the optimum."""
     seen: list[bool] = []
-    real = lsq.least_squares
+    real = lsq_solve.least_squares
 
     def spy(fun, x0, jac, **kw):
         def fun2(z):
@@ -250,7 +252,7 @@ def test_nan_region_is_penalised_never_passed_to_the_optimiser(monkeypatch) -> N
 
         return real(fun2, x0, jac=jac2, **kw)
 
-    monkeypatch.setattr(lsq, "least_squares", spy)
+    monkeypatch.setattr(lsq_solve, "least_squares", spy)
 
     def fragile(x: np.ndarray) -> np.ndarray:
         if np.any(x[:, 0] > 5.0):

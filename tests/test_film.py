@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from kinfit.errors import ModelError, StudyError
-from kinfit.physics.film import CORRELATIONS, FILM_MODELS, AgitationFilm, CorrelationFilm, PackedBedFilm, SlurryFilm, SphereFilm, kolmogorov_reynolds, make_film_model, sherwood_frossling, sherwood_ranz_marshall, sherwood_wakao_funazkri, specific_power
+from kinfit.physics.film import CORRELATIONS, FILM_MODELS, AgitationFilm, CorrelationFilm, PackedBedFilm, SlurryFilm, SphereFilm, make_film_model
+from kinfit.physics.sherwood import kolmogorov_reynolds, sherwood_frossling, sherwood_ranz_marshall, sherwood_wakao_funazkri, specific_power
 from kinfit.physics.geometry import GEOMETRIES, characteristic_length, external_area
 from kinfit.physics.properties import make_fluid
 

@@ -10,7 +10,7 @@ import numpy as np
 
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.problem import Problem, Space
-from kinfit.estimate.uncertainty import bootstrap
+from kinfit.estimate.bootstrap import bootstrap
 
 
 class InterruptAfter:

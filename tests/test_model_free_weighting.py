@@ -19,7 +19,8 @@ from scipy import stats
 from studies import profiles_csv, runs_csv, study_text, write_study
 
 from kinfit.analysis.diagnosis.model_free import compare_profiles, model_free_tests
-from kinfit.study.load import comparison_sets, load_study
+from kinfit.study.load import load_study
+from kinfit.study.runs import comparison_sets
 
 PARAMETERS = {"k_ref": "0.05 mol/(kg*s)", "activation_energy": "60 kJ/mol", "order": 1.0,
               "kc_ref": "1e-4 m/s", "agitation_exponent": 0.5, "size_exponent": 0.5}

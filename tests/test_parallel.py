@@ -26,7 +26,8 @@ from studies import simulate, study_text
 
 from kinfit.errors import StudyError
 from kinfit.estimate.least_squares import fit_problem
-from kinfit.estimate.uncertainty import bootstrap, profile_intervals
+from kinfit.estimate.uncertainty import profile_intervals
+from kinfit.estimate.bootstrap import bootstrap
 from kinfit.core.executors import SerialExecutor, available_workers, make_executor
 from kinfit.cli.options import add_parallel_arguments, executor_from_args
 from kinfit.fitting.fit import fit_models

@@ -25,13 +25,14 @@ import numpy as np
 import pytest
 from test_parallel import fragile_problem, write_campaign
 
-import kinfit.estimate.least_squares as lsq
+import kinfit.estimate.solve as lsq_solve
 import kinfit.core.files as outputs
 from kinfit.errors import SolverError, StudyError
 from kinfit.estimate.checkpoint import atomic_write
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.problem import PENALTY
-from kinfit.estimate.uncertainty import bootstrap, profile_intervals
+from kinfit.estimate.uncertainty import profile_intervals
+from kinfit.estimate.bootstrap import bootstrap
 
 
 @pytest.fixture(scope="module")
@@ -54,7 +55,7 @@ def spy(monkeypatch):
     """Record whether every residual vector and Jacobian handed to scipy is finite, and the
     largest residual magnitude seen."""
     seen: dict[str, list[float]] = {"finite": [], "max_abs": []}
-    real = lsq.least_squares
+    real = lsq_solve.least_squares
 
     def wrapped(fun, x0, jac, **kw):
         def fun2(z):
@@ -70,7 +71,7 @@ def spy(monkeypatch):
 
         return real(fun2, x0, jac=jac2, **kw)
 
-    monkeypatch.setattr(lsq, "least_squares", wrapped)
+    monkeypatch.setattr(lsq_solve, "least_squares", wrapped)
     return seen
 
 
@@ -238,7 +239,7 @@ def test_interrupted_bootstrap_keeps_earlier_results_and_exits_130(campaign, tmp
     """Ctrl-C after 4 of 20 bootstrap replicates of ``kinfit fit --bootstrap 20``: exit code
     130 with a message saying so, results.json replaced whole by the fit with the 4 finished
     replicates recorded, no temporary file left."""
-    import kinfit.estimate.uncertainty as unc
+    import kinfit.estimate.bootstrap as unc
     from kinfit.cli.parser import main
 
     path = campaign[0]

@@ -14,7 +14,8 @@ from studies import runs_csv, study_text
 
 from kinfit.cli.parser import main
 from kinfit.errors import StudyError
-from kinfit.study.load import comparison_sets, load_study
+from kinfit.study.load import load_study
+from kinfit.study.runs import comparison_sets
 from kinfit.core.units import parse_quantity, to_si
 
 STUDY = study_text(

@@ -38,6 +38,7 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy import stats
 
+from kinfit.analysis.transport_limits import DIAMETER_RANGE, SPEED_RANGE, log_boundary
 from kinfit.core.files import (
     manifest,
     to_plain,
@@ -52,15 +53,12 @@ from kinfit.fitting.saved import FittedModel, load_fitted
 from kinfit.model.compiled import Model
 from kinfit.physics.criteria import Thresholds
 from kinfit.study.conditions import PAD_RUN, Condition, display
-from kinfit.study.load import FACTORS, Study
+from kinfit.study.runs import FACTORS, Study
 
-__all__ = ['SPEED_RANGE', 'DIAMETER_RANGE', 'NOISE_Z', 'CandidateGrid', 'Plan', 'default_grid', 'campaign_conditions', 'transport_tests', 'information', 'd_optimal', 'plan_runs']
+__all__ = ["NOISE_Z", "CandidateGrid", "Plan", "default_grid", "campaign_conditions",
+           "transport_tests", "information", "d_optimal", "plan_runs"]
 
 Array = NDArray[np.float64]
-#: stirrer speeds searched, rev/s (10 to 3000 rpm: lab autoclaves, common practice)
-SPEED_RANGE = (10.0 / 60.0, 3000.0 / 60.0)
-#: particle diameters searched, m (1 um to 10 mm)
-DIAMETER_RANGE = (1e-6, 1e-2)
 #: two-sided 95 % normal quantile used for "differs beyond the noise"
 NOISE_Z = 1.959963984540054
 _BISECTIONS = 40
@@ -96,25 +94,10 @@ def _states(fitted: FittedModel, conditions: Sequence[Condition], thresholds: Th
 
 def _bisect_log(met: Callable[[Array], NDArray[np.bool_]], lo: float, hi: float, n: int, *,
                 met_above: bool) -> Array:
-    """Per item, the boundary of the region where ``met`` holds, by bisection in log x.
-
-    ``met_above``: the criterion holds for x above the boundary (speed) and the smallest such x
-    is returned; otherwise it holds below (diameter) and the largest such x is returned. NaN
-    where it holds nowhere in [lo, hi]; lo (hi) where it holds everywhere.
-    """
-    a, b = np.full(n, np.log(lo)), np.full(n, np.log(hi))
-    ok_lo, ok_hi = met(np.exp(a)), met(np.exp(b))
-    for _ in range(_BISECTIONS):
-        mid = 0.5 * (a + b)
-        ok = met(np.exp(mid))
-        good_side = ok if met_above else ~ok
-        b = np.where(good_side, mid, b)
-        a = np.where(good_side, a, mid)
-    if met_above:
-        out = np.where(ok_lo, lo, np.where(ok_hi, np.exp(b), np.nan))
-    else:
-        out = np.where(ok_hi, hi, np.where(ok_lo, np.exp(a), np.nan))
-    return out
+    """:func:`~kinfit.analysis.transport_limits.log_boundary`, NaN where the criterion holds
+    nowhere in [lo, hi]."""
+    found, _, nowhere = log_boundary(met, lo, hi, n, increasing=met_above, iterations=_BISECTIONS)
+    return np.where(nowhere, np.nan, found)
 
 
 def transport_tests(fitted: FittedModel, *, thresholds: Thresholds | None = None,

@@ -65,7 +65,7 @@ from kinfit.study.conditions import (
     parse_times,
     read_conditions,
 )
-from kinfit.study.load import FACTORS, Study
+from kinfit.study.runs import FACTORS, Study
 
 __all__ = ['Condition', 'FittedModel', 'Prediction', 'ExtrapolationRefused', 'FACTOR_KINDS', 'FACTOR_ALIASES', 'PAD_RUN', 'campaign_defaults', 'parse_conditions', 'read_conditions', 'conditions_from_argument', 'conditions_study', 'display', 'load_fitted', 'covariance_draws', 'posterior_draws', 'parse_times', 'predict_conditions', 'film_information', 'outside_ranges']
 

@@ -14,17 +14,6 @@ from kinfit.analysis.audit.limits import (
 from kinfit.core.files import (
     prepare_out_dir,
 )
-from kinfit.study.claims import (  # noqa: F401 - re-exported for callers of the audit
-    BASES,
-    Claim,
-    ClaimFile,
-    _build,
-    _Built,
-    _film_dict,
-    _sha256,
-    _transport_table,
-    load_claims,
-)
 
 __all__ = ["add_arguments", "run"]
 

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.analysis.diagnosis.diagnosis import DRAWS_FILE, diagnose, read_draws
-from kinfit.analysis.diagnosis.next_runs import SPEED_RANGE
+from kinfit.analysis.transport_limits import SPEED_RANGE
 from kinfit.analysis.diagnosis.per_run import N_DRAWS
 from kinfit.core.files import prepare_out_dir
 from kinfit.core.units import parse_quantity

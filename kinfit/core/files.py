@@ -5,6 +5,7 @@ reproducibility manifest shared by every command."""
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import json
 import math
 import os
@@ -21,7 +22,7 @@ import numpy as np
 from kinfit.core.version import __version__
 from kinfit.errors import StudyError
 
-__all__ = ["atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
+__all__ = ["file_sha256", "atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
            "manifest", "to_plain", "prepare_out_dir"]
 
 _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint", "arviz-base",
@@ -121,6 +122,15 @@ def write_json_atomic(path: str | Path, data: Mapping[str, Any]) -> Path:
 def write_frame_atomic(path: str | Path, frame) -> Path:
     """Write a pandas DataFrame as CSV atomically."""
     return write_text_atomic(path, frame.to_csv(index=False))
+
+
+def file_sha256(path: str | Path) -> str:
+    """SHA-256 hex digest of a file's bytes."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
 
 
 def manifest(*, files: Mapping[str, str] | None = None, seed: int | None = None,

@@ -18,13 +18,15 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from numpy.typing import NDArray
 from scipy.stats import chi2
 from scipy.stats import f as fisher_f
 
 from kinfit.errors import StudyError
 from kinfit.estimate.result import Estimate
 
-__all__ = ["CRITERIA", "Comparison", "NestedTest", "compare_fits"]
+__all__ = ["CRITERIA", "Comparison", "NestedTest", "compare_fits", "akaike_weights",
+           "likelihood_ratio_test", "f_test"]
 
 CRITERIA = ("aicc", "aic", "bic")
 
@@ -115,6 +117,40 @@ def _same_data(a: Estimate, b: Estimate) -> bool:
     return bool(np.allclose(ya, yb, rtol=1e-12, atol=0.0))
 
 
+def akaike_weights(values: Sequence[float] | NDArray[np.float64]
+                   ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Differences to the best and weights of an information criterion.
+
+    ``delta_i = C_i - min C`` and ``weight_i = exp(-delta_i/2) / sum_j exp(-delta_j/2)``
+    (Burnham & Anderson 2002, §2.9).
+
+    Examples
+    --------
+    >>> d, w = akaike_weights([10.0, 10.0])
+    >>> d.tolist(), w.tolist()
+    ([0.0, 0.0], [0.5, 0.5])
+    """
+    c = np.asarray(values, dtype=float)
+    delta = c - np.min(c)
+    w = np.exp(-0.5 * delta)
+    return delta, w / np.sum(w)
+
+
+def likelihood_ratio_test(loglike_reduced: float, loglike_full: float, df: int
+                          ) -> tuple[float, float]:
+    """``LR = 2 (lnL_full - lnL_reduced)`` and its chi-square(df) upper tail (Wilks 1938); a
+    negative LR (the fuller fit short of its optimum) has p = 1."""
+    lr = 2.0 * (loglike_full - loglike_reduced)
+    return float(lr), float(chi2.sf(max(lr, 0.0), df))
+
+
+def f_test(sse_reduced: float, sse_full: float, dp: int, dof_full: int) -> tuple[float, float]:
+    """Extra-sum-of-squares F ``[(S_r - S_f)/dp] / [S_f/dof_full]`` and its F(dp, dof_full)
+    upper tail (Bates & Watts 1988, §3.10); a negative F has p = 1."""
+    fs = ((sse_reduced - sse_full) / dp) / (sse_full / dof_full)
+    return float(fs), float(fisher_f.sf(max(fs, 0.0), dp, dof_full))
+
+
 def compare_fits(
     estimates: Mapping[str, Estimate] | Sequence[Estimate],
     *,
@@ -188,10 +224,7 @@ def compare_fits(
         )
     table = pd.DataFrame(rows, index=pd.Index(labels, name="fit"))
     c = table[criterion].to_numpy(dtype=float)
-    delta = c - np.min(c)
-    w = np.exp(-0.5 * delta)
-    table["delta"] = delta
-    table["weight"] = w / np.sum(w)
+    table["delta"], table["weight"] = akaike_weights(c)
     best = labels[int(np.argmin(c))]
     tests = []
     for pair in nested:
@@ -209,8 +242,7 @@ def _nested_test(red_lab: str, red: Estimate, full_lab: str, full: Estimate) -> 
             f"'{full_lab}' ({full.n_params} parameters); list pairs as (reduced, full)"
         )
     df = full.statistics.k - red.statistics.k
-    lr = 2.0 * (full.statistics.loglike - red.statistics.loglike)
-    lr_p = float(chi2.sf(lr, df)) if lr >= 0 else 1.0
+    lr, lr_p = likelihood_ratio_test(red.statistics.loglike, full.statistics.loglike, df)
     note = (
         "" if lr >= 0 else "the fuller fit has the lower likelihood: it did not reach its optimum"
     )
@@ -220,8 +252,7 @@ def _nested_test(red_lab: str, red: Estimate, full_lab: str, full: Estimate) -> 
     dp = full.n_params - red.n_params
     dof = full.n_obs - full.n_params
     if same_weights and dof > 0:
-        fs = ((red.sse - full.sse) / dp) / (full.sse / dof)
-        fp = float(fisher_f.sf(fs, dp, dof))
+        fs, fp = f_test(red.sse, full.sse, dp, dof)
     else:
         fs = fp = float("nan")
         note = (note + "; " if note else "") + (

@@ -15,15 +15,17 @@ import numpy as np
 from kinfit.core.files import manifest
 from kinfit.errors import StudyError
 from kinfit.estimate.identifiability import identifiability
+from kinfit.estimate.compare import akaike_weights, f_test, likelihood_ratio_test
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.result import Estimate
-from kinfit.estimate.uncertainty import bootstrap, linearised_intervals, profile_intervals
+from kinfit.estimate.uncertainty import linearised_intervals, profile_intervals
+from kinfit.estimate.bootstrap import bootstrap
 from kinfit.fitting.identifiability import identifiability_warnings
 from kinfit.fitting.results import FitResult
 from kinfit.model.compiled import Model, ModelSpec
 from kinfit.model.simulation import point_table, run_table
 from kinfit.physics.criteria import Thresholds
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ["FitOptions", "fit", "fit_model", "fit_models", "main_spec", "parse_candidate",
            "comparison_rows"]
@@ -293,8 +295,6 @@ def fit(study: Study, options: FitOptions | None = None, *,
     result = fit_model(spec, study, options, argv=argv)
     if not candidates:
         return result
-    from dataclasses import replace
-
     options = options or FitOptions()
     specs = [spec] + [parse_candidate(c, study) for c in candidates]
     others = fit_models(specs[1:], study, replace(options, profile=False, bootstrap=0),
@@ -307,13 +307,10 @@ def fit(study: Study, options: FitOptions | None = None, *,
 def comparison_rows(results: Sequence[FitResult], labels: Sequence[str],
                     parameter_sets: Sequence[set[str]]) -> list[dict[str, Any]]:
     """SSE, AICc, BIC and Akaike weights (Burnham & Anderson 2002) for fits of the same data,
-    with a likelihood-ratio test against the first model when one nests the other."""
-    from scipy import stats
-
-    aicc = np.array([r.fit["aicc"] for r in results], dtype=float)
-    delta = aicc - np.min(aicc)
-    weights = np.exp(-0.5 * delta)
-    weights = weights / weights.sum()
+    with a likelihood-ratio test against the first model when one nests the other; the
+    arithmetic is :mod:`kinfit.estimate.compare`'s, shared with :func:`compare_fits
+    <kinfit.estimate.compare.compare_fits>`."""
+    delta, weights = akaike_weights([r.fit["aicc"] for r in results])
     rows = []
     first = results[0]
     for i, (r, label) in enumerate(zip(results, labels, strict=True)):
@@ -327,15 +324,12 @@ def comparison_rows(results: Sequence[FitResult], labels: Sequence[str],
             nested = sets[0] <= sets[1] or sets[1] <= sets[0]
             df = abs(big.fit["n_params"] - small.fit["n_params"])
             if nested and df > 0:
-                lr = 2.0 * (big.fit["loglike"] - small.fit["loglike"])
-                row["likelihood_ratio"] = {"statistic": float(lr), "df": int(df),
-                                           "p_value": float(stats.chi2.sf(max(lr, 0.0), df)),
+                lr, lr_p = likelihood_ratio_test(small.fit["loglike"], big.fit["loglike"], df)
+                row["likelihood_ratio"] = {"statistic": lr, "df": int(df), "p_value": lr_p,
                                            "against": labels[0]}
-                n = big.fit["n_obs"]
-                p_big = big.fit["n_params"]
-                F = ((small.fit["sse"] - big.fit["sse"]) / df) / (big.fit["sse"] / (n - p_big))
-                row["f_test"] = {"statistic": float(F), "df": [int(df), int(n - p_big)],
-                                 "p_value": float(stats.f.sf(max(F, 0.0), df, n - p_big)),
+                dof = big.fit["n_obs"] - big.fit["n_params"]
+                F, f_p = f_test(small.fit["sse"], big.fit["sse"], df, dof)
+                row["f_test"] = {"statistic": F, "df": [int(df), int(dof)], "p_value": f_p,
                                  "against": labels[0]}
         rows.append(row)
     return rows

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ["identifiability_warnings"]
 

@@ -25,7 +25,7 @@ from kinfit.fitting.saved import model_of_fit
 from kinfit.model.compiled import Model
 from kinfit.model.simulation import run_table
 from kinfit.physics.criteria import REGIMES, Thresholds
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ["SampleOptions", "sample_study", "posterior_run_summaries"]
 

@@ -19,7 +19,7 @@ from kinfit.fitting.fit import main_spec
 from kinfit.fitting.results import FitResult
 from kinfit.model.compiled import Model, ModelSpec
 from kinfit.study.conditions import Array, Condition, conditions_study
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ["FittedModel", "fitted_theta", "model_of_fit", "load_fitted", "covariance_draws",
            "posterior_draws", "predict_rows"]

@@ -30,7 +30,7 @@ from kinfit.physics.surface import (
     observed_rate,
     observed_rate_value,
 )
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 from kinfit.study.parameters import ParameterTable
 
 __all__ = ["ModelSpec", "Model", "RunState", "ERROR_SCALE_NAMES"]

@@ -13,7 +13,7 @@ from numpy.typing import NDArray
 
 from kinfit.physics.criteria import Thresholds
 from kinfit.model.compiled import Model, ModelSpec
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ["Simulation", "simulate", "run_table", "point_table"]
 

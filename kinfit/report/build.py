@@ -22,7 +22,7 @@ from kinfit.report.builder import build_content
 from kinfit.report.content import Report
 from kinfit.report.inputs import load_inputs
 from kinfit.report.render import FIGURE_DIR, to_html, to_markdown
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ['ReportResult', 'build_report']
 

@@ -40,7 +40,7 @@ from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
 from kinfit.report.transport_sections import posterior_section, transport_section
 from kinfit.study.campaign import TEST_MEANING
-from kinfit.study.load import FACTORS, comparison_sets
+from kinfit.study.runs import FACTORS, comparison_sets
 
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
 

@@ -9,7 +9,6 @@ present but unreadable is an error naming the file and the fix, never silently s
 
 from __future__ import annotations
 
-import hashlib
 import json
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -20,26 +19,19 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
+from kinfit.core.files import file_sha256
 from kinfit.errors import KinfitError, StudyError
 from kinfit.fitting.results import FitResult
 from kinfit.fitting.saved import model_of_fit
-from kinfit.study.load import Study, load_study
+from kinfit.study.load import load_study
+from kinfit.study.runs import Study
 
-__all__ = ["ReportInputs", "load_inputs", "OPTIONAL_FILES", "file_sha256"]
+__all__ = ["ReportInputs", "load_inputs", "OPTIONAL_FILES"]
 
 #: optional files of a fit folder, read when present
 OPTIONAL_FILES = ("posterior.json", "posterior_draws.csv", "posterior_bands.csv",
                   "diagnosis.json")
 _CURVE_POINTS = 160
-
-
-def file_sha256(path: str | Path) -> str:
-    """SHA-256 hex digest of a file's bytes."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@ and the classic transport tests the runs support."""
 
 from __future__ import annotations
 
-from kinfit.study.load import FACTORS, Study, comparison_sets
+from kinfit.study.runs import FACTORS, Study, comparison_sets
 
 __all__ = ["campaign_summary", "TEST_MEANING"]
 

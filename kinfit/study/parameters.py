@@ -11,8 +11,8 @@ from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, replace
 from typing import Any
 
-from kinfit.errors import StudyError
 from kinfit.core.units import SI_UNIT, parse_quantity, printable, ureg
+from kinfit.errors import StudyError
 
 __all__ = ["Parameter", "ParameterTable", "parameter_table_from_toml", "PARAMETER_KINDS",
            "SCOPES"]

@@ -20,7 +20,8 @@ import numpy as np
 
 from kinfit.estimate.least_squares import fit_problem
 from kinfit.estimate.problem import Problem, Space
-from kinfit.estimate.uncertainty import bootstrap, linearised_intervals, profile_intervals
+from kinfit.estimate.uncertainty import linearised_intervals, profile_intervals
+from kinfit.estimate.bootstrap import bootstrap
 
 __all__ = ["main"]
 

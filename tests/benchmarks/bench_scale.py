@@ -107,7 +107,7 @@ def fit_scaling(tmp: Path) -> tuple[float, float]:
 
 def bootstrap_scaling(tmp: Path) -> float:
     from kinfit.estimate.least_squares import fit_problem
-    from kinfit.estimate.uncertainty import bootstrap
+    from kinfit.estimate.bootstrap import bootstrap
     from kinfit.core.executors import make_executor
 
     model, problem = _problem(tmp / "boot", 24)

@@ -57,6 +57,7 @@ from kinfit.analysis.audit.limits import (
 )
 from kinfit.analysis.audit.markdown import markdown
 from kinfit.core.files import (
+    file_sha256,
     manifest,
     to_plain,
     write_json_atomic,
@@ -65,18 +66,9 @@ from kinfit.core.files import (
 from kinfit.fitting.fit import FitOptions, fit_model
 from kinfit.model.compiled import Model, ModelSpec
 from kinfit.physics.criteria import Thresholds, compute_criteria
-from kinfit.study.claims import (  # noqa: F401 - re-exported for callers of the audit
-    BASES,
-    Claim,
-    ClaimFile,
-    _build,
-    _Built,
-    _film_dict,
-    _sha256,
-    _transport_table,
-    load_claims,
-)
-from kinfit.study.load import FACTORS, Study
+from kinfit.study.claims import Claim, ClaimFile, load_claims
+from kinfit.study.claim_studies import _build, _Built, _transport_table
+from kinfit.study.runs import FACTORS, Study
 from kinfit.study.parameters import ParameterTable, parameter_table_from_toml
 
 __all__ = ['Claim', 'ClaimFile', 'ClaimAudit', 'AuditResult', 'load_claims', 'audit_claims']
@@ -564,9 +556,9 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
     cf = path if isinstance(path, ClaimFile) else load_claims(path)
     thresholds = thresholds or Thresholds()
 
-    files = {str(cf.path): _sha256(cf.path)}
+    files = {str(cf.path): file_sha256(cf.path)}
     if cf.data is not None:
-        files.update({str(p): _sha256(p) for p in cf.data})
+        files.update({str(p): file_sha256(p) for p in cf.data})
     claims = tuple(_audit_one(cf, c, thresholds) for c in cf.claims)
     return AuditResult(cf.path, cf.title, claims,
                        {"carberry": f"{thresholds.carberry:g}/|n|",

@@ -19,7 +19,8 @@ from numpy.typing import NDArray
 
 from kinfit.analysis.diagnosis.falsified import FalsifiedResult, falsified_kinetics
 from kinfit.analysis.diagnosis.model_free import FactorTest, NotPossible, model_free_tests
-from kinfit.analysis.diagnosis.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next_runs
+from kinfit.analysis.diagnosis.next_runs import NextRun, next_runs
+from kinfit.analysis.transport_limits import DIAMETER_RANGE, SPEED_RANGE
 from kinfit.analysis.diagnosis.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.core.files import prepare_out_dir, to_plain, write_json_atomic
 from kinfit.errors import StudyError
@@ -27,7 +28,7 @@ from kinfit.fitting.fit import FitOptions, fit_model, main_spec
 from kinfit.fitting.results import FitResult
 from kinfit.fitting.saved import model_of_fit
 from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
-from kinfit.study.load import Study
+from kinfit.study.runs import Study
 
 __all__ = ['Diagnosis', 'diagnose', 'read_draws', 'DIAGNOSIS_VERSION', 'SOURCES', 'DRAWS_FILE']
 

@@ -27,7 +27,7 @@ from numpy.typing import NDArray
 from scipy import optimize, stats
 
 from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
-from kinfit.study.load import Run, Study
+from kinfit.study.runs import Run, Study
 
 __all__ = [
     "ArrheniusFit",

@@ -24,16 +24,13 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.analysis.transport_limits import DIAMETER_RANGE, SPEED_RANGE, log_boundary
 from kinfit.model.compiled import Model
 from kinfit.physics.criteria import Thresholds
 
-__all__ = ["NextRun", "next_runs", "SPEED_RANGE", "DIAMETER_RANGE"]
+__all__ = ["NextRun", "next_runs"]
 
 Array = NDArray[np.float64]
-#: stirrer speeds searched, rev/s (10 to 3000 rpm: the range of lab autoclaves, common practice)
-SPEED_RANGE = (10.0 / 60.0, 3000.0 / 60.0)
-#: particle diameters searched, m (1 um to 10 mm)
-DIAMETER_RANGE = (1e-6, 1e-2)
 _ITERATIONS = 32
 
 
@@ -112,30 +109,8 @@ class _Evaluator:
 
 def _boundary(passes: Callable[[Array], NDArray[np.bool_]], lo: float, hi: float, R: int, *,
               increasing: bool) -> tuple[Array, NDArray[np.bool_], NDArray[np.bool_]]:
-    """Per run, the boundary between failing and passing in [lo, hi] (log bisection).
-
-    ``increasing``: passing for large values (find the smallest passing value); otherwise
-    passing for small values (find the largest passing value). Returns the boundary, whether it
-    passes everywhere in the range, and whether it fails everywhere.
-    """
-    a = np.full(R, np.log(lo))
-    b = np.full(R, np.log(hi))
-    at_lo = passes(np.exp(a))
-    at_hi = passes(np.exp(b))
-    everywhere = at_lo & at_hi
-    nowhere = ~at_lo & ~at_hi
-    for _ in range(_ITERATIONS):
-        mid = 0.5 * (a + b)
-        ok = passes(np.exp(mid))
-        if increasing:
-            b = np.where(ok, mid, b)
-            a = np.where(ok, a, mid)
-        else:
-            a = np.where(ok, mid, a)
-            b = np.where(ok, b, mid)
-    found = np.exp(b if increasing else a)
-    found = np.where(everywhere, lo if increasing else hi, found)
-    return found, everywhere, nowhere
+    """:func:`~kinfit.analysis.transport_limits.log_boundary` over the runs."""
+    return log_boundary(passes, lo, hi, R, increasing=increasing, iterations=_ITERATIONS)
 
 
 def _rpm(v: float) -> str:

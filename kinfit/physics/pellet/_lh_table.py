@@ -59,7 +59,9 @@ Phi ~ 0.33); ``tests/test_lh_pellet.py`` checks 2e-5 against solve_bvp at off-no
 from __future__ import annotations
 
 import functools
+import warnings
 from dataclasses import dataclass
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -74,6 +76,7 @@ from kinfit.physics.pellet.numerical import pellet_eta
 __all__ = [
     "BETA_MAX",
     "TABLE_FILE",
+    "TABLE_RESOURCE",
     "LHTable",
     "modulus_factor",
     "first_order_log",
@@ -98,7 +101,10 @@ BETA_MAX: dict[tuple[int, str], float] = {
     (2, "slab"): 5.0, (2, "cylinder"): 6.0, (2, "sphere"): 7.0,
 }
 #: Where the pre-built tables are looked for (written by :func:`save_lh_tables`).
-TABLE_FILE = Path(__file__).resolve().parent.parent / "data" / "lh_eta.npz"
+#: the shipped table, read through importlib.resources (works from a wheel or a zip too)
+TABLE_RESOURCE = resources.files("kinfit").joinpath("data", "lh_eta.npz")
+#: where the build script writes it
+TABLE_FILE = Path(str(TABLE_RESOURCE))
 
 X_RANGE = (-2.0, 3.5)
 #: (start, end, step) of the uniform pieces of the x nodes; m = 1 needs the finest steps near
@@ -359,15 +365,19 @@ def save_lh_tables(path: str | Path = TABLE_FILE) -> Path:
 def lh_table(m: int, geometry: str) -> LHTable:
     """The cached table of one (m, geometry): loaded from :data:`TABLE_FILE` when its grid key
     matches the code, built in memory otherwise."""
-    if TABLE_FILE.exists():
+    if TABLE_RESOURCE.is_file():
         try:
-            with np.load(TABLE_FILE) as data:
+            with TABLE_RESOURCE.open("rb") as fh, np.load(fh) as data:
                 key = data["key"]
                 if key.shape == _grid_key().shape and np.array_equal(key, _grid_key()):
                     return _assemble(m, geometry,
                                      np.array(data[f"m{m}/{geometry}"], dtype=float))
-        except (OSError, KeyError, ValueError):
-            pass                                   # unreadable or stale file: rebuild
+            warnings.warn(f"the shipped table {TABLE_RESOURCE.name} was built for another grid; "
+                          "building it in memory (rebuild the file with the module's "
+                          "save function)", RuntimeWarning, stacklevel=2)
+        except (OSError, KeyError, ValueError) as exc:
+            warnings.warn(f"the shipped table {TABLE_RESOURCE.name} cannot be read ({exc}); "
+                          "building it in memory", RuntimeWarning, stacklevel=2)
     return build_lh_table(m, geometry)
 
 

@@ -23,7 +23,9 @@ integration: at most 5e-6 relative over 1e-3 <= Phi <= 1e3 and 0 <= n <= 3.
 from __future__ import annotations
 
 import functools
+import warnings
 from dataclasses import dataclass
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -43,6 +45,7 @@ from kinfit.physics.pellet._phase import (
 __all__ = [
     "ORDER_RANGE",
     "TABLE_FILE",
+    "TABLE_RESOURCE",
     "PowerLawTable",
     "OrderSet",
     "power_law_table",
@@ -56,7 +59,10 @@ Array = NDArray[Any]          # float, index and mask arrays alike
 #: Orders the table covers.
 ORDER_RANGE = (0.0, 3.0)
 #: Where a pre-built table is looked for (written by :func:`save_power_law_tables`).
-TABLE_FILE = Path(__file__).resolve().parent.parent / "data" / "power_law_eta.npz"
+#: the shipped table, read through importlib.resources (works from a wheel or a zip too)
+TABLE_RESOURCE = resources.files("kinfit").joinpath("data", "power_law_eta.npz")
+#: where the build script writes it
+TABLE_FILE = Path(str(TABLE_RESOURCE))
 
 _FORMAT = 1
 _LN10 = np.log(10.0)
@@ -199,15 +205,19 @@ def power_law_table(geometry: str) -> PowerLawTable:
     """The cached table of one geometry: loaded from :data:`TABLE_FILE` when it matches the
     code's grid key, built in memory otherwise."""
     a = SHAPE_INDEX[geometry]
-    if TABLE_FILE.exists():
+    if TABLE_RESOURCE.is_file():
         try:
-            with np.load(TABLE_FILE) as data:
+            with TABLE_RESOURCE.open("rb") as fh, np.load(fh) as data:
                 key = data["key"]
                 if key.shape == _grid_key().shape and np.array_equal(key, _grid_key()):
                     values = {f: np.array(data[f"{geometry}/{f}"]) for f in _FIELDS}
                     return _assemble(a, values)
-        except (OSError, KeyError, ValueError):
-            pass                                   # unreadable or stale file: rebuild
+            warnings.warn(f"the shipped table {TABLE_RESOURCE.name} was built for another grid; "
+                          "building it in memory (rebuild the file with the module's "
+                          "save function)", RuntimeWarning, stacklevel=2)
+        except (OSError, KeyError, ValueError) as exc:
+            warnings.warn(f"the shipped table {TABLE_RESOURCE.name} cannot be read ({exc}); "
+                          "building it in memory", RuntimeWarning, stacklevel=2)
     return build_power_law_table(geometry)
 
 

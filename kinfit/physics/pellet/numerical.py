@@ -10,8 +10,8 @@ from numpy.typing import ArrayLike
 
 from kinfit.errors import ConvergenceWarning, ModelError, SolverError, StudyError
 from kinfit.physics.geometry import shape_index
-from kinfit.physics.pellet._checks import Array, RateFunction, _positive
 from kinfit.physics.pellet import _solver as fv
+from kinfit.physics.pellet._checks import Array, RateFunction, _positive
 from kinfit.physics.pellet.modulus import _depletion_integral, _grid_call, _rate_integral
 
 __all__ = ["pellet_eta"]
