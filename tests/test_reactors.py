@@ -8,7 +8,7 @@ from scipy.integrate import solve_ivp
 
 from kinfit.errors import SolverError
 from kinfit.physics.kinetics.power import PowerLaw
-from kinfit.physics.reactors import BatchGrid, batch_profiles, cstr_outlet, differential_rates
+from kinfit.physics.reactors import BatchGrid, batch_profiles, differential_rates
 from kinfit.physics.surface import PelletRate, observed_rate
 
 
@@ -67,13 +67,6 @@ def test_differential_rates_pick_each_run():
     rate = lambda C: 2.0 * C  # noqa: E731
     out = differential_rates(rate, np.array([1.0, 3.0]), np.array([0, 0, 1]))
     np.testing.assert_allclose(out, [[2.0, 2.0, 6.0]])
-
-
-def test_cstr_first_order_closed_form():
-    # first-order CSTR: C = C_in / (1 + tau w k) (Levenspiel 1999, ch. 5)
-    k, w, tau = 1e-3, 4.0, np.array([10.0, 100.0, 1000.0])
-    c = cstr_outlet(lambda C: k * C, 500.0, tau, w)
-    np.testing.assert_allclose(c, 500.0 / (1 + tau * w * k), rtol=1e-10)
 
 
 def test_zero_rate_raises_clear_error():

@@ -194,7 +194,7 @@ def solve_weighted(
         if res.status != 1 or cosine <= _COSINE_TOL or (budget is not None and res.nfev >= budget):
             break
     u = full(z)
-    f_end, bad_end = evaluator(u[None, :])
+    _, bad_end = evaluator(u[None, :])
     active = np.zeros(p, dtype=int)
     active[idx] = getattr(res, "active_mask", np.zeros(idx.size, dtype=int))
     se_full = np.full(p, np.nan)

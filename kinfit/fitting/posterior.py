@@ -135,10 +135,7 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
                               "q05": fine.q05, "q50": fine.q50, "q95": fine.q95})
     write_frame_atomic(out / "posterior_bands.csv", frame)
     post.to_csv(out / "posterior_draws.csv")
-    try:
-        post.to_netcdf(out / "posterior.nc")
-    except (ImportError, ValueError, OSError):
-        pass
+    post.to_netcdf(out / "posterior.nc")
     pick = rng.choice(post.n_draws, size=min(options.n_predictive // 2 or 1, post.n_draws),
                       replace=False)
     derived = posterior_run_summaries(model, np.asarray(post.draws)[pick][:, : post.n_model])

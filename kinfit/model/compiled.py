@@ -274,10 +274,6 @@ class Model:
                 out[name] = theta[:, idx][:, self.group_of_run]
         return out
 
-    def values_of(self, theta_row: Array) -> dict[str, float]:
-        """Column name -> value for one parameter set."""
-        return dict(zip(self.columns, np.asarray(theta_row, dtype=float).ravel(), strict=True))
-
     # ------------------------------------------------------------------ physics
     def _pieces(self, values: Mapping[str, Array], idx: NDArray[np.int_] | None = None):
         """Pellet rate, film conductance, kc and De laid out for evaluation.

@@ -1,5 +1,5 @@
-"""Reactor models for a single reaction A -> products: stirred batch slurry, differential
-(initial-rate) tables and the CSTR at steady state, each vectorised over runs and parameter sets.
+"""Reactor models for a single reaction A -> products: stirred batch slurry and differential
+(initial-rate) tables, each vectorised over runs and parameter sets.
 
 Batch: dCb/dt = -w r_obs(Cb). The profile follows from the time integral
 
@@ -21,7 +21,7 @@ from numpy.typing import NDArray
 
 from kinfit.errors import SolverError
 
-__all__ = ["batch_profiles", "differential_rates", "cstr_outlet", "BatchGrid"]
+__all__ = ["batch_profiles", "differential_rates", "BatchGrid"]
 
 Array = NDArray[np.float64]
 
@@ -116,7 +116,7 @@ def batch_profiles(
     grid = grid or BatchGrid()
     C0 = np.atleast_2d(np.asarray(C0, dtype=float))
     ceq = np.asarray(C_eq, dtype=float)
-    shape = np.broadcast_shapes(C0.shape, ceq.shape if ceq.ndim < 2 else ceq.shape)
+    shape = np.broadcast_shapes(C0.shape, ceq.shape)
     C0, ceq = np.broadcast_to(C0, shape), np.broadcast_to(ceq, shape)
     span = C0 - ceq
     if np.any(span <= 0):
@@ -198,60 +198,3 @@ def differential_rates(rate: Callable[[Array], Array], C0: Array, run_index: NDA
     """
     r = rate(np.asarray(C0, dtype=float)[None, :, None])
     return r[:, :, 0][:, np.asarray(run_index)]
-
-
-def cstr_outlet(rate: Callable[[Array], Array], C_in: Array, residence_time: Array,
-                loading: Array, *, C_eq: Array | float = 0.0) -> Array:
-    """Outlet concentration of a CSTR at steady state: (C_in - C)/tau = w r_obs(C).
-
-    Solved by a vectorised bracketing root finder on [C_eq, C_in].
-
-    Parameters
-    ----------
-    rate : callable
-        ``rate(C)`` returning the observed rate (mol/(kg s)) of the same shape.
-    C_in, residence_time, loading : ndarray
-        Feed concentration (mol/m^3), residence time (s), catalyst loading (kg/m^3); broadcast.
-    """
-    C_in = np.asarray(C_in, dtype=float)
-    shape = np.broadcast_shapes(C_in.shape, np.shape(residence_time), np.shape(loading),
-                                np.shape(C_eq))
-    hi = np.broadcast_to(C_in, shape).astype(float)
-    lo = np.broadcast_to(np.asarray(C_eq, dtype=float), shape).astype(float)
-
-    def f(c: Array) -> Array:  # decreasing in c, positive at C_eq, negative at C_in
-        return (hi - c) / residence_time - loading * rate(c)
-
-    return _illinois(f, lo, hi)
-
-
-def _illinois(f: Callable[[Array], Array], lo: Array, hi: Array, *, rtol: float = 1e-13,
-              maxiter: int = 200) -> Array:
-    """Vectorised Illinois (modified regula falsi) root of a function with f(lo) >= 0 >= f(hi),
-    evaluated on whole arrays every iteration (so closures over broadcast arrays stay valid)."""
-    a, b = lo.copy(), hi.copy()
-    fa, fb = f(a), f(b)
-    x = b.copy()
-    done = (fa == 0) | (fb == 0) | (b - a <= 0)
-    x = np.where(fa == 0, a, x)
-    side = np.zeros(a.shape, dtype=int)
-    for _ in range(maxiter):
-        if done.all():
-            return x
-        with np.errstate(divide="ignore", invalid="ignore"):
-            xn = np.where(fa != fb, (a * fb - b * fa) / (fb - fa), 0.5 * (a + b))
-        xn = np.where(np.isfinite(xn) & (xn > a) & (xn < b), xn, 0.5 * (a + b))
-        fx = f(xn)
-        upper = fx * fb > 0  # root between a and xn
-        b = np.where(~done & upper, xn, b)
-        fb = np.where(~done & upper, fx, fb)
-        fa = np.where(~done & upper & (side == 1), 0.5 * fa, fa)
-        a = np.where(~done & ~upper, xn, a)
-        fa = np.where(~done & ~upper, fx, fa)
-        fb = np.where(~done & ~upper & (side == -1), 0.5 * fb, fb)
-        side = np.where(upper, 1, -1)
-        newly = ~done & ((np.abs(xn - x) <= rtol * np.abs(hi)) | (fx == 0) |
-                         (b - a <= rtol * np.abs(hi)))
-        x = np.where(~done, xn, x)
-        done |= newly
-    raise SolverError(f"CSTR outlet did not converge at {int((~done).sum())} points")

@@ -181,13 +181,8 @@ def pellet_eta(rate_v: RateFunction, drate_v: RateFunction, Cs: ArrayLike, De: A
                        "rate_v")[..., 0].ravel()
     n_fine = max(2 * n_grid, 128) if np.max(r_low / r_s) > _ZERO_ORDER_LIKE else n_grid
     levels = (n_fine // 4, n_fine // 2, n_fine)
-    # start profile: the order at Cs, but no dead zone unless the rate is sub-linear at C_eq
-    r_mid = _grid_call(rate_hat, (ceq + 1e-6 * span).reshape(shape)[..., None],
-                       "rate_v")[..., 0].ravel()
-    with np.errstate(divide="ignore", invalid="ignore"):
-        n_low = np.log(r_mid / r_low) / np.log(1e4)
+    # start profile: the local order at Cs
     n_eff = np.clip(dr_s * span / r_s, 0.0, 5.0)
-    n_eff = np.where(np.nan_to_num(n_low, nan=1.0) < 0.99, n_eff, n_eff)
     phi_R = (a + 1.0) * phi
     D = None
     etas = []
