@@ -34,7 +34,7 @@ def run(args: argparse.Namespace) -> int:
     result.save(out)
     print(result.report())
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
-    boot = result.extras.get("bootstrap") or {}
+    boot = result.bootstrap or {}
     if boot.get("interrupted"):
         print(f"kinfit: bootstrap interrupted after {boot['n_done']} of {boot['n']} replicates; "
               "the results are saved with the intervals of the finished ones", file=sys.stderr)

@@ -223,7 +223,7 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
                                              "profile": options.profile,
                                              "bootstrap": options.bootstrap,
                                              "bootstrap_kind": options.bootstrap_kind}}),
-        predictions=pred, extras=extras,
+        predictions=pred, **extras,
     )
 
 

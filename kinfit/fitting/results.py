@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -54,6 +55,19 @@ class FitResult:
         Input hashes, versions, seed, command line.
     predictions : DataFrame
         Per observation: run, time, observed, fitted, residual and the transport state.
+    covariance : tuple of tuple of float, or None
+        Linearised covariance of the varying parameters (physical), in the order of
+        ``correlation["names"]``; results.json keeps it under ``extras.covariance``.
+    profiles : dict or None
+        Profile-likelihood traces, name -> {values, tau} (``extras.profiles``).
+    profile_t_crit : float or None
+        The t quantile the profile intervals use (``extras.profile_t_crit``).
+    bootstrap : dict or None
+        Bootstrap summary: kind, n, n_done, n_failed, interrupted, notes
+        (``extras.bootstrap``).
+
+    Every field is a section of results.json (:meth:`to_dict`), and :meth:`load` reads it
+    back field for field.
     """
 
     study: str
@@ -66,7 +80,30 @@ class FitResult:
     comparison: tuple[Mapping[str, Any], ...] = ()
     manifest: Mapping[str, Any] = field(default_factory=dict)
     predictions: pd.DataFrame | None = None
-    extras: Mapping[str, Any] = field(default_factory=dict)
+    covariance: tuple[tuple[float, ...], ...] | None = None
+    profiles: Mapping[str, Mapping[str, Any]] | None = None
+    profile_t_crit: float | None = None
+    bootstrap: Mapping[str, Any] | None = None
+
+    def __post_init__(self) -> None:
+        if self.covariance is not None:
+            cov = tuple(tuple(math.nan if v is None else float(v) for v in row)
+                        for row in self.covariance)
+            object.__setattr__(self, "covariance", cov)
+
+    @property
+    def extras(self) -> dict[str, Any]:
+        """The ``extras`` section of results.json: the typed fields that are set."""
+        out: dict[str, Any] = {}
+        if self.profiles is not None:
+            out["profiles"] = self.profiles
+        if self.profile_t_crit is not None:
+            out["profile_t_crit"] = self.profile_t_crit
+        if self.bootstrap is not None:
+            out["bootstrap"] = self.bootstrap
+        if self.covariance is not None:
+            out["covariance"] = [list(row) for row in self.covariance]
+        return out
 
     @property
     def converged(self) -> bool:
@@ -143,7 +180,7 @@ class FitResult:
             correlation=data.get("correlation", {}),
             identifiability=tuple(data.get("identifiability", ())),
             comparison=tuple(data.get("comparison", ())), manifest=data.get("manifest", {}),
-            predictions=pred, extras=data.get("extras", {}),
+            predictions=pred, **_typed_extras(data.get("extras") or {}, path),
         )
 
     # ------------------------------------------------------------------ text report
@@ -211,6 +248,18 @@ class FitResult:
                 lines.append(f"  {row['model']:<36}{row['sse']:>12.5g}{row['aicc']:>12.5g}"
                              f"{row['bic']:>12.5g}{row['akaike_weight']:>9.3f}")
         return "\n".join(lines)
+
+
+_EXTRA_FIELDS = ("covariance", "profiles", "profile_t_crit", "bootstrap")
+
+
+def _typed_extras(extras: Mapping[str, Any], path: Path) -> dict[str, Any]:
+    """The typed fields held in results.json's ``extras`` section."""
+    unknown = sorted(set(extras) - set(_EXTRA_FIELDS))
+    if unknown:
+        raise StudyError(f"{path}: unknown entries {unknown} in 'extras'; a kinfit results file "
+                         f"holds {list(_EXTRA_FIELDS)} there")
+    return {k: extras[k] for k in _EXTRA_FIELDS if k in extras}
 
 
 #: The per-observation table saved beside results.json.

@@ -156,7 +156,7 @@ def load_fitted(study: Study, fit: FitResult) -> FittedModel:
     spec = replace(spec0, parameters=spec0.parameters.with_values(shared))
     model = Model(spec, study)
     cov = None
-    raw = fit.extras.get("covariance") if fit.extras else None
+    raw = fit.covariance
     names = list(fit.correlation.get("names", [])) if fit.correlation else []
     if raw is not None and names and all(c in names for c in model.columns):
         full = np.array(raw, dtype=float)

@@ -289,7 +289,7 @@ class ReportBuilder(ReportContext):
         scales = self.res.fit.get("error_scales") or {}
         if scales:
             blocks.append(Facts(tuple((k, fmt(v)) for k, v in scales.items())))
-        profiles = get_path(self.res.extras, "profiles", default={}) or {}
+        profiles = self.res.profiles or {}
         if profiles:
             est = {n: float(p["estimate"]) for n, p in params.items()
                    if p.get("estimate") is not None}
@@ -297,8 +297,8 @@ class ReportBuilder(ReportContext):
                 "profile_likelihood", "Profile likelihood of each parameter: signed root of "
                 "the scaled SSE increase; the interval is where it stays between the dashed "
                 "lines (±t critical value).",
-                lambda: fg.profile_likelihood_figure(profiles, t_crit=get_path(
-                    self.res.extras, "profile_t_crit"), estimates=est, units=self.units),
+                lambda: fg.profile_likelihood_figure(profiles, t_crit=self.res.profile_t_crit,
+                    estimates=est, units=self.units),
                 "profile likelihood traces")
             if block:
                 blocks.append(block)

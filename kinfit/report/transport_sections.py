@@ -158,7 +158,7 @@ def _kinetics_blocks(rb: ReportContext, diag: Mapping[str, Any]) -> list[Any]:
     blocks: list[Any] = [Heading("Intrinsic and apparent kinetics")]
     cov = None
     names = list(get_path(rb.res.correlation, "names", default=[]) or [])
-    c = np.asarray(get_path(rb.res.extras, "covariance", default=[]) or [], dtype=float)
+    c = np.asarray(rb.res.covariance or [], dtype=float)
     if "k_ref" in names and "activation_energy" in names and c.shape == (len(names),) * 2:
         i, j = names.index("k_ref"), names.index("activation_energy")
         cov = c[np.ix_([i, j], [i, j])]
