@@ -13,7 +13,8 @@ import pytest
 import scipy.constants
 
 from kinfit.analysis.calculator import criteria_from_measurement
-from kinfit.analysis.diagnosis import falsified, next_runs
+from kinfit.analysis.diagnosis import falsified
+from kinfit.analysis.diagnosis import next_runs
 from kinfit.analysis.transport_limits import log_boundary
 from kinfit.estimate.compare import akaike_weights, f_test, likelihood_ratio_test
 from kinfit.fitting.fit import comparison_rows

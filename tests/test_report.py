@@ -405,6 +405,7 @@ def test_first_order_effectiveness_reference_values(geometry, column):
 def test_every_axis_has_a_unit(fitted, full_report):
     """Each axis that shows numbers carries a label with a unit in brackets."""
     from kinfit.report import figures as fg
+    from kinfit.report import posterior_figures as pf
 
     rng = np.random.default_rng(seed=1)
     obs = pd.DataFrame({"run": ["A"] * 5 + ["B"] * 5, "time [s]": np.tile(np.arange(5.0), 2),
@@ -424,10 +425,10 @@ def test_every_axis_has_a_unit(fitted, full_report):
                                 runs=[("A", 2.0, 0.42, "pore")]),
         fg.regime_map_figure([("A", 0.0, 0.2, "film"), ("B", 0.5, 0.001, "pore")],
                              carberry_limit=0.05, weisz_prater_limit=0.033),
-        fg.correlation_figure(["x", "y"], np.array([[1.0, 0.3], [0.3, 1.0]])),
-        fg.corner_figure(draws, ["x", "y"], units={"x": "m/s", "y": "1"}),
-        fg.trace_figure(draws, ["x", "y"], units={"x": "m/s", "y": "1"}),
-        fg.profile_likelihood_figure({"x": {"values": [0.0, 1.0, 2.0], "tau": [-2, 0, 2]}},
+        pf.correlation_figure(["x", "y"], np.array([[1.0, 0.3], [0.3, 1.0]])),
+        pf.corner_figure(draws, ["x", "y"], units={"x": "m/s", "y": "1"}),
+        pf.trace_figure(draws, ["x", "y"], units={"x": "m/s", "y": "1"}),
+        pf.profile_likelihood_figure({"x": {"values": [0.0, 1.0, 2.0], "tau": [-2, 0, 2]}},
                                      t_crit=2.0, estimates={"x": 1.0}, units={"x": "m/s"}),
     ]
     unit = re.compile(r"\[[^\]]+\]")

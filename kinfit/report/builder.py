@@ -18,6 +18,7 @@ import pandas as pd
 
 from kinfit.physics.criteria import REGIMES
 from kinfit.report import figures as fg
+from kinfit.report import posterior_figures as pf
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -297,7 +298,7 @@ class ReportBuilder(ReportContext):
                 "profile_likelihood", "Profile likelihood of each parameter: signed root of "
                 "the scaled SSE increase; the interval is where it stays between the dashed "
                 "lines (±t critical value).",
-                lambda: fg.profile_likelihood_figure(profiles, t_crit=self.res.profile_t_crit,
+                lambda: pf.profile_likelihood_figure(profiles, t_crit=self.res.profile_t_crit,
                     estimates=est, units=self.units),
                 "profile likelihood traces")
             if block:
@@ -389,7 +390,7 @@ class ReportBuilder(ReportContext):
                                      numeric=(False,) + (True,) * len(names),
                                      csv="correlation.csv"))
             b = self.figure("correlation", "Correlation matrix of the estimates.",
-                            lambda: fg.correlation_figure(names, mat), "correlation heat map")
+                            lambda: pf.correlation_figure(names, mat), "correlation heat map")
             if b:
                 blocks.append(b)
         warnings_ = [str(w.get("message", w)) for w in self.res.identifiability]

@@ -15,6 +15,7 @@ import pandas as pd
 
 from kinfit.physics.criteria import REGIMES, THRESHOLD_SOURCES
 from kinfit.report import figures as fg
+from kinfit.report import posterior_figures as pf
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -309,10 +310,10 @@ def posterior_section(rb: ReportContext) -> Section | None:
             for key, cap, make, alt in (
                 ("posterior_corner", "Posterior draws: marginal histograms (median and "
                  "5–95 % dotted) and pairwise densities; red lines mark the least-squares "
-                 "estimate.", lambda: fg.corner_figure(draws, shown, units=rb.units,
+                 "estimate.", lambda: pf.corner_figure(draws, shown, units=rb.units,
                                                       estimates=est), "corner plot"),
                 ("posterior_traces", "Traces of the kept chain (one line per walker).",
-                 lambda: fg.trace_figure(draws, shown, units=rb.units), "traces"),
+                 lambda: pf.trace_figure(draws, shown, units=rb.units), "traces"),
             ):
                 b = rb.figure(key, cap, make, alt)
                 if b:
