@@ -3,7 +3,7 @@ started at the least-squares optimum, posterior predictive bands per run, and pe
 quantities (eta, Weisz-Prater, Carberry) with the probability of each regime.
 
 Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv,
-posterior_bands.csv, posterior.nc (NetCDF through ArviZ where available) and the sampler
+posterior_bands.csv, posterior.nc (NetCDF-4 with ArviZ's groups) and the sampler
 checkpoint posterior_checkpoint.npz (kept, so ``--resume`` continues it).
 """
 
@@ -146,10 +146,7 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
                               "q05": fine.q05, "q50": fine.q50, "q95": fine.q95})
     write_frame_atomic(out / "posterior_bands.csv", frame)
     post.to_csv(out / "posterior_draws.csv")
-    try:
-        post.to_netcdf(out / "posterior.nc")
-    except (ImportError, ValueError, OSError):
-        pass
+    post.to_netcdf(out / "posterior.nc")  # NetCDF-4, ArviZ's groups (h5netcdf is declared)
     pick = rng.choice(post.n_draws, size=min(options.n_predictive // 2 or 1, post.n_draws),
                       replace=False)
     derived = posterior_run_summaries(model, np.asarray(post.draws)[pick][:, : post.n_model])

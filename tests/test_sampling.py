@@ -584,8 +584,9 @@ def test_result_forms(linear_known_sigma, tmp_path):
     assert frame["step"].min() == post.settings.burn_in
     back = pd.read_csv(post.to_csv(tmp_path / "draws.csv"))
     np.testing.assert_allclose(back[["b0", "b1", "b2"]].to_numpy(), post.draws, rtol=1e-12)
-    xr = pytest.importorskip("xarray")
-    path = post.to_netcdf(tmp_path / "post.nc", engine="scipy")
+    import xarray as xr  # a dependency of arviz-base
+
+    path = post.to_netcdf(tmp_path / "post.nc", engine="scipy")  # NetCDF-3 on request
     with xr.open_dataset(path, engine="scipy") as ds:
         assert ds["b1"].shape == (post.chain_shape[1], post.draws.shape[0] // post.chain_shape[1])
         np.testing.assert_allclose(ds["b1"].values.T.reshape(-1), post.draws[:, 1])
@@ -627,14 +628,25 @@ def test_checkpoint_file_content(tmp_path):
 
 
 def test_netcdf_with_arviz_groups(linear_known_sigma, tmp_path):
-    # NetCDF-4 with ArviZ's groups needs h5py (not installed everywhere; skipped without it)
-    pytest.importorskip("h5py")
-    xr = pytest.importorskip("xarray")
+    # the default file is NetCDF-4 with ArviZ's groups (h5netcdf and h5py are declared
+    # dependencies): read back, every draw, lp and the stored settings are the sampler's
+    import xarray as xr
+
     post = linear_known_sigma[3]
-    path = post.to_netcdf(tmp_path / "post.nc", engine="h5netcdf")
-    tree = xr.open_datatree(path, engine="h5netcdf")
-    np.testing.assert_allclose(tree["posterior"]["b0"].values.T.reshape(-1), post.draws[:, 0])
-    assert tree["sample_stats"]["lp"].shape == tree["posterior"]["b0"].shape
+    path = post.to_netcdf(tmp_path / "post.nc")
+    assert path.read_bytes()[:8] == b"\x89HDF\r\n\x1a\n"  # HDF5 signature: NetCDF-4
+    with xr.open_datatree(path, engine="h5netcdf") as tree:
+        for j, name in enumerate(post.names):
+            np.testing.assert_array_equal(tree["posterior"][name].values.T.reshape(-1),
+                                          post.draws[:, j])
+        np.testing.assert_array_equal(tree["sample_stats"]["lp"].values.T.reshape(-1),
+                                      post.log_prob)
+        assert tree["sample_stats"]["lp"].shape == tree["posterior"]["b0"].shape
+        attrs = tree["posterior"].attrs
+        assert json.loads(attrs["kinfit_settings"]) == post.settings.to_dict()
+        assert json.loads(attrs["kinfit_convergence"])["converged"] == post.converged
+    with pytest.raises(StudyError, match="not recognised"):
+        post.to_netcdf(tmp_path / "x.nc", engine="netcdf4")
 
 
 def test_proportional_error_scale_is_recovered():

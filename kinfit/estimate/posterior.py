@@ -349,17 +349,17 @@ class Posterior:
             {"posterior": post, "sample_stats": {"lp": lp}}, attrs={"posterior": self._attrs()}
         )
 
-    def to_netcdf(self, path: str | os.PathLike[str], *, engine: str = "auto") -> Path:
+    def to_netcdf(self, path: str | os.PathLike[str], *, engine: str = "h5netcdf") -> Path:
         """Write the draws to a NetCDF file atomically; returns the path.
 
         Parameters
         ----------
         path : path-like
-        engine : {"auto", "h5netcdf", "scipy"}
-            ``"h5netcdf"``: NetCDF-4 holding :meth:`to_datatree` (ArviZ's groups); needs h5py.
+        engine : {"h5netcdf", "scipy"}
+            ``"h5netcdf"`` (default): NetCDF-4 holding :meth:`to_datatree` (ArviZ's groups; read
+            it with ``xarray.open_datatree``); h5netcdf and h5py are declared dependencies.
             ``"scipy"``: NetCDF-3, one group holding the posterior variables and ``lp``
-            (read it with ``xarray.open_dataset``). ``"auto"`` takes h5netcdf when h5py is
-            importable, else scipy.
+            (read it with ``xarray.open_dataset``), for readers without HDF5.
 
         Notes
         -----
@@ -367,18 +367,11 @@ class Posterior:
         draws; settings and the verdict are stored as JSON in the ``kinfit_settings`` and
         ``kinfit_convergence`` attributes.
         """
-        engines = ("auto", "h5netcdf", "scipy")
+        engines = ("h5netcdf", "scipy")
         if engine not in engines:
             raise StudyError(
                 f"to_netcdf engine '{engine}' is not recognised; use one of {engines}"
             )
-        if engine == "auto":
-            try:
-                import h5py  # noqa: F401
-
-                engine = "h5netcdf"
-            except ImportError:
-                engine = "scipy"
         with _atomic_path(path) as tmp:
             if engine == "h5netcdf":
                 self.to_datatree().to_netcdf(tmp, engine="h5netcdf")
