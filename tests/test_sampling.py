@@ -689,3 +689,77 @@ def test_combined_error_model_posterior_matches_quadrature():
     mean_ref = np.array([np.sum(w * g) for g in grids])
     sd_ref = np.sqrt([np.sum(w * g**2) for g in grids] - mean_ref**2)
     _mc_close(post, mean_ref, sd_ref)
+
+
+# -- printed digits from the Monte Carlo standard error --------------------------------------
+# Rule (kinfit.estimate.convergence.supported_digits): the last printed digit is the power of
+# ten u at or above 2 MCSE, so the Monte Carlo error (about 2 MCSE at 95 %) stays within one
+# unit of it; at least 2 and at most 6 significant digits. Common practice following Vehtari
+# et al. (2021, Bayesian Analysis 16(2), 667-718, sec. 4.3: report only the digits the MCSE
+# supports). Two runs with different seeds print identical digits unless a rounding boundary
+# falls between their values: a chance event of probability about |difference| / u, so the
+# test below checks the rule and that the MCSE it rests on is honest, not that two chains agree.
+@pytest.mark.parametrize(
+    ("value", "mcse", "sig", "text"),
+    [
+        (0.140045, 2.3e-4, 3, "0.140"),      # 2 MCSE = 4.6e-4 -> last digit 1e-3
+        (0.140045, 4e-5, 4, "0.1400"),       # 8e-5 -> 1e-4
+        (1.3383, 0.04, 2, "1.3"),            # 0.08 -> 0.1
+        (1.3383, 0.4, 2, "1.3"),             # 0.8 -> 1, but never fewer than 2 digits
+        (42144.2, 30.0, 3, "42100"),         # 60 -> 100: rounded, not padded with noise
+        (-0.02735, 1.2e-4, 2, "−0.027"),     # 2.4e-4 -> 1e-3; negative values alike
+        (1.0, 1e-12, 6, "1.00000"),          # never more than 6 digits
+        (0.25, None, None, "0.2500"),        # no MCSE: the default 4 digits
+        (0.25, 0.0, None, "0.2500"),
+        (0.25, float("nan"), None, "0.2500"),
+    ],
+)
+def test_posterior_summary_prints_the_digits_its_mcse_supports(value, mcse, sig, text):
+    from kinfit.report.content import fmt_mc
+
+    assert cv.supported_digits(value, mcse) == sig
+    assert fmt_mc(value, mcse) == text
+    if sig is not None:  # the printed value is within half a unit of the last digit
+        unit = 10.0 ** (math.floor(math.log10(abs(value))) - sig + 1)
+        assert unit >= 2 * mcse or sig == 2
+        assert abs(float(f"{value:.{sig}g}") - value) <= 0.5 * unit
+
+
+def test_quantile_mcse_is_honest_across_seeds():
+    # the MCSE that sets the printed digits must describe the spread between independent runs:
+    # median, q05 and q95 of two seeds (same data) differ by less than 5 sqrt(se1^2 + se2^2)
+    # (5 standard deviations of a normal difference; chance of a false alarm ~1e-6 per value).
+    # Reference: the quantile MCSE of Vehtari et al. (2021) through arviz-stats; also within a
+    # factor of 2 of the iid form sqrt(p (1 - p) / ESS) / f(q) for this normal posterior
+    prob, X, y, beta_hat = _linear_problem()
+    runs = [_quiet(problem=prob, start=beta_hat, scale_start=[0.1], sample_scale=False,
+                   seed=seed, progress=False, max_steps=3000) for seed in (21, 22)]
+    a, b = (r.summary() for r in runs)
+    sd = 0.1 * np.sqrt(np.diag(np.linalg.inv(X.T @ X)))
+    for j, name in enumerate(("b0", "b1", "b2")):
+        for key, p in (("median", 0.5), ("q05", 0.05), ("q95", 0.95)):
+            se1, se2 = a[name]["mcse"][key], b[name]["mcse"][key]
+            assert se1 > 0 and se2 > 0
+            assert abs(a[name][key] - b[name][key]) < 5 * math.hypot(se1, se2), (name, key)
+            density = stats.norm.pdf(stats.norm.ppf(p)) / sd[j]  # f at the p quantile
+            iid = math.sqrt(p * (1 - p) / a[name]["ess"]) / density
+            assert 0.5 < se1 / iid < 2.0, (name, key, se1, iid)
+        lo, hi = a[name]["hdi94"]
+        assert all(s > 0 for s in a[name]["mcse"]["hdi94"])
+        assert lo < a[name]["median"] < hi
+
+
+def test_console_summary_rounds_to_the_mcse(linear_known_sigma):
+    post = linear_known_sigma[3]
+    summary = post.summary()
+    lines = post.report().splitlines()
+    for name, s in summary.items():
+        row = next(ln for ln in lines if ln.split()[:1] == [name])
+        for token, key in zip(row.split()[1:4], ("median", "q05", "q95"), strict=True):
+            sig = cv.supported_digits(s[key], s["mcse"][key])
+            digits = token.lstrip("-").replace(".", "").split("e")[0].lstrip("0")
+            assert len(digits) == sig, (name, key, token, sig)
+            assert float(token) == pytest.approx(s[key], abs=10.0 ** (
+                math.floor(math.log10(abs(s[key]))) - sig + 1))
+    # posterior.json keeps full precision: the summary is not rounded
+    assert summary["b0"]["median"] == float(np.median(post.draws[:, 0]))

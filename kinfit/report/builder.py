@@ -34,6 +34,8 @@ from kinfit.report.content import (
     factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
@@ -294,8 +296,10 @@ class ReportBuilder:
                     row.append(fmt_interval(p.get(k), 3) if p.get("vary", True) else "–")
                     tone.append(None)
             if post:
-                row += [fmt(q.get("median")), fmt_interval([q.get("q05"), q.get("q95")], 3)
-                        if q else "–"]
+                se = q.get("mcse") or {}
+                row += [fmt_mc(q.get("median"), se.get("median")),
+                        fmt_interval_mc([q.get("q05"), q.get("q95")],
+                                        [se.get("q05"), se.get("q95")], 3) if q else "–"]
                 tone += [None, None]
             rows.append(row)
             tones.append(tone)
