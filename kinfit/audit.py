@@ -249,14 +249,12 @@ def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
                 "kc": float(kc[i]) if built.has_kc else None,
                 **({} if n_app is None else {
                     "apparent_order": float(n_app[i]),
-                    "carberry_limit": thresholds.carberry / max(abs(float(n_app[i])), 1e-12)}),
+                    "carberry_limit": float(thresholds.carberry_limit(n_app[i]))}),
             },
             "as_intrinsic": {
                 "effectiveness_factor": float(c.effectiveness_factor[i]),
                 "thiele_modulus": float(c.thiele_modulus[i]),
-                "regime": str(c.regime[i]),
-                "shares": {"film": float(c.film_share[i]), "pore": float(c.pore_share[i]),
-                           "reaction": float(c.reaction_share[i])},
+                **c.shares.at(i),
                 "observed_rate": float(state.observed.rate[i]),
                 "carberry": float(c.carberry[i]) if built.has_kc else None,
                 "weisz_prater": float(c.weisz_prater[i]) if built.De else None,
@@ -445,7 +443,8 @@ def _criteria_evidence(crit: dict[str, Any], thresholds: Thresholds) -> tuple[li
         uncomputed = True
     elif wp[1] >= lim["weisz_prater"]:
         out.append(f"Weisz-Prater number up to {wp[1]:.3g} (run {wp[0]}) against the limit "
-                   f"{lim['weisz_prater']:.3g} (Psi_L; Psi_R < 0.3, Weisz & Prater 1954): "
+                   f"{lim['weisz_prater']:.3g} (Psi_L, L = Vp/Sp; first-order eta 0.95 in this "
+                   "geometry): "
                    "pore diffusion limits the rate")
     bad = [(rid, r["as_intrinsic"]) for rid, r in runs.items()
            if r["as_intrinsic"]["regime"] != "kinetic"
@@ -594,8 +593,9 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
     claims = tuple(_audit_one(cf, c, thresholds) for c in cf.claims)
     return AuditResult(cf.path, cf.title, claims,
                        {"carberry": f"{thresholds.carberry:g}/|n|",
+                        "weisz_prater_eta": thresholds.weisz_prater_eta,
                         "weisz_prater_radius": thresholds.weisz_prater_radius,
-                        "mears": thresholds.mears, "effectiveness": thresholds.effectiveness,
+                        "mears": f"{thresholds.mears:g} (sphere; x (R/L)/3 for other shapes)", "effectiveness": thresholds.effectiveness,
                         "film_activation_energy": FILM_EA_LIMIT,
                         "pore_activation_energy_ratio": list(PORE_EA_RATIO),
                         "order_tolerance": ORDER_TOLERANCE, "level": LEVEL},

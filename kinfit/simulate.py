@@ -50,16 +50,14 @@ def run_table(model: Model, theta_row: NDArray[np.float64], *,
             "weisz_prater": float(c.weisz_prater[i]),
             "mears": float(c.mears[i]),
             "carberry": float(c.carberry[i]),
-            "regime": str(c.regime[i]),
-            "shares": {"film": float(c.film_share[i]), "pore": float(c.pore_share[i]),
-                       "reaction": float(c.reaction_share[i])},
+            **c.shares.at(i),
             "observed_rate": float(state.observed.rate[i]),
             "surface_concentration": float(state.observed.surface_concentration[i]),
             "kc": float(state.kc[i]),
             "order": float(c.order[i]),
             "passes": {k: bool(v[i]) for k, v in passes.items()},
             "intrinsic": bool(intrinsic[i]),
-            "thresholds": c.thresholds,
+            "thresholds": c.limits_at(i),
         }
     return out
 
