@@ -36,6 +36,11 @@ def _cmd_check(args: argparse.Namespace) -> int:
     spec = main_spec(study)  # the model choices and the parameter table must fit together
     print(campaign_summary(study))
     print(f"\nmodel: {spec.label}; parameters {', '.join(spec.parameter_names)}")
+    from kinfit.simulate import transport_scaling_warning
+
+    warning = transport_scaling_warning(study, spec)
+    if warning:
+        print(warning)
     print("study is valid")
     return EXIT_OK
 

@@ -102,6 +102,7 @@ def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
         "particle_density": spec.particle_density,
         "reactor": spec.reactor,
         "error_model": study.error_model,
+        "temperature_scaling": spec.scaling.describe(spec.film.name),
         "equations": {
             "rate": "r = k(T) (Cs/C_ref)^n, k(T) = k_ref exp(-Ea/R (1/T - 1/T_ref))"
             if law.name == "power" else f"rate law '{law.name}'",

@@ -276,13 +276,14 @@ def test_film_campaign_labels_and_model_free_conclusions(film_campaign):
     # labels from the fit equal the true ones wherever the truth is not on a boundary
     for rid, tr in true_runs.items():
         shares = tr["shares"].values()
-        if min(abs(s - 0.5) for s in shares) > 0.05:
+        near_kinetic = abs(tr["shares"]["reaction"] - 0.95) < 0.02
+        if min(abs(s - 0.5) for s in shares) > 0.05 and not near_kinetic:
             assert diag.runs[rid]["regime"] == tr["regime"], rid
     assert diag.runs["R06"]["regime"] == "film"  # 70 degC, 200 rpm, 300 um
     # intrinsic flags equal the true ones wherever the true Carberry number is not within
     # 30 % of its limit (a fitted kc a few per cent off moves runs near the limit)
-    limit = diag.thresholds["carberry"]
     for rid, tr in true_runs.items():
+        limit = tr["thresholds"]["carberry"]
         if not 0.7 < tr["carberry"] / limit < 1.3:
             assert (rid in diag.intrinsic_runs) == tr["intrinsic"], rid
     speed_tests = [t for t in diag.model_free if t.factor == "stirrer_speed"]
@@ -444,7 +445,8 @@ def test_diagnosis_json_shape(film_campaign, tmp_path):
     assert {"temperature", "k_apparent"} <= set(f["per_temperature"][0])
     assert set(data["next_runs"][0]) >= {"temperature", "stirrer_speed", "particle_diameter",
                                         "note"}
-    assert data["thresholds"]["weisz_prater"] == pytest.approx(0.3 / 9)
+    # sphere: Psi_L where the first-order eta is 0.95 (closed form of Thiele 1939), Psi_R/9
+    assert data["thresholds"]["weisz_prater"] == pytest.approx(0.7671 / 9, abs=3e-5)
     assert "Mears 1971" in data["sources"]["mears"]
     assert not list((tmp_path / "out").glob(".*.tmp"))  # atomic write left nothing behind
     text = diag.report()

@@ -35,7 +35,8 @@ def _reference(rate_scalar, C0, w, t_eval):
 @pytest.mark.parametrize("n", [0.5, 1.0, 1.5, 2.0])
 def test_batch_matches_solve_ivp_with_film(n):
     # the same observed rate (power law behind a film) integrated by scipy's solve_ivp at
-    # rtol 1e-12 (Hindmarsh 1983 LSODA): kinfit's profile must agree to 1e-6 relative
+    # rtol 1e-12 (LSODA: Hindmarsh 1983 ODEPACK with the stiffness switching of Petzold 1983):
+    # kinfit's profile must agree to 1e-6 relative
     k = np.array([[0.05], [0.12]])  # two parameter sets, mol/(kg s)
     kfa = 2e-4  # film conductance kc a_m, m^3/(kg s)
     C0 = np.array([400.0, 900.0])

@@ -58,10 +58,19 @@ def _linear_problem(n=30, sigma=0.1, seed=0, error_model=None):
     return prob, X, y, beta_hat
 
 
+#: draws per effectively independent draw assumed by :func:`_mc_close`: a ceiling, well
+#: above the integrated autocorrelation times of a few tens of steps that affine-invariant
+#: ensembles show on low-dimensional Gaussian targets (Goodman & Weare 2010; Foreman-Mackey
+#: et al. 2013), each step holding one draw per walker
+DRAWS_PER_INDEPENDENT = 100.0
+
+
 def _mc_close(post, mean_ref, sd_ref, k=4.5):
-    """Posterior means and sds within k Monte Carlo standard errors (from the bulk ESS)."""
+    """Posterior means and sds within k Monte Carlo standard errors, with the errors from
+    the known posterior sd and a conservative floor on the effective sample size (the number
+    of draws over :data:`DRAWS_PER_INDEPENDENT`), not from the sampler's own ESS."""
     d = post.draws[:, : len(mean_ref)]
-    ess = post.ess[: len(mean_ref)]
+    ess = max(d.shape[0] / DRAWS_PER_INDEPENDENT, 1.0)
     mean_err = sd_ref / np.sqrt(ess)
     sd_err = sd_ref / np.sqrt(2.0 * ess)  # se of a normal sd, (common practice)
     np.testing.assert_array_less(np.abs(d.mean(axis=0) - mean_ref), k * mean_err)

@@ -77,9 +77,10 @@ def transport_section(rb: ReportBuilder) -> Section:
         rows.append(row)
         tones.append(tone)
     blocks: list[Any] = [
-        Text("Criteria at each run's initial conditions, from the fitted model. The "
-             "regime names the resistance whose share of the total exceeds one half "
-             "(\"mixed\" when none does)."),
+        Text("Criteria at each run's initial conditions, from the fitted model. A run is "
+             "\"kinetic\" only when the reaction share is at least 0.95 (its observed rate "
+             "within 5 % of the intrinsic rate at bulk conditions); \"film\" or \"pore\" "
+             "when that resistance's share exceeds one half; \"mixed\" otherwise."),
         rb.table("Per-run transport criteria and regime; green meets the threshold, red "
                    "fails it.", header, rows, tones=tones,
                    numeric=(False, False) + (True,) * 8 + (False,), csv="runs.csv"),
