@@ -298,3 +298,27 @@ def test_report_shows_adequacy_before_estimates(truths, tmp_path):
     summary = md[: md.index("Estimates")]
     assert "the intervals below hold only if the model is right" in summary
     assert "Model adequacy" in md
+
+
+@pytest.mark.filterwarnings("ignore::kinfit.errors.ConvergenceWarning")
+def test_posterior_predictive_checks_in_posterior_json(truths, tmp_path):
+    """posterior.json carries an adequacy block of posterior predictive p-values from a
+    subsample of draws; on the campaign with temperature-dependent transport fitted without it
+    the temperature trends alarm there too. A short chain: the draws sit near the optimum,
+    which is all this check needs (the sampler's convergence is tested elsewhere)."""
+    from kinfit.bayes import SampleOptions, sample_study
+    from kinfit.study import load_study
+
+    model, f = truths["viscosity"]
+    y = f + np.random.default_rng(7).normal(scale=NOISE, size=f.size)
+    path = write_campaign(tmp_path / "bad", y, model)
+    res = _fit(tmp_path / "bad", model, y)
+    out = tmp_path / "fit"
+    res.save(out)
+    _, content = sample_study(load_study(path), res, out, SampleOptions(
+        walkers=16, max_steps=200, chunk=200, seed=3, progress=False, n_predictive=200))
+    a = json.loads((out / "posterior.json").read_text())["adequacy"]
+    assert a == json.loads(json.dumps(content["adequacy"]))
+    assert a["kind"] == "posterior predictive" and 0 < a["draws"] <= 200
+    assert {t["name"] for t in a["tests"]} >= {"residual_scale", "serial", "trend"}
+    assert a["adequate"] is False and "temperature" in a["message"]
