@@ -150,7 +150,7 @@ def markdown(result: Any, sources: Mapping[str, str]) -> str:
     return "\n".join(lines) + "\n"
 
 
-def refit_inadequacy(reproduction: dict[str, Any]) -> str | None:
+def refit_inadequacy(reproduction: Mapping[str, Any]) -> str | None:
     """A caution to the verdict when the transport-aware refit itself fails its adequacy
     tests (the verdict then rests on a model the data reject), else None."""
     block = (reproduction.get("transport_aware") or {}).get("adequacy") or {}

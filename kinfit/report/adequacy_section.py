@@ -24,7 +24,7 @@ _TEST_WORDS = {
 
 
 def _failed(block: Mapping[str, Any] | None) -> bool:
-    return bool(block) and block.get("adequate") is False
+    return block is not None and block.get("adequate") is False
 
 
 def adequacy_summary(fit: Mapping[str, Any], posterior: Mapping[str, Any] | None
@@ -34,7 +34,7 @@ def adequacy_summary(fit: Mapping[str, Any], posterior: Mapping[str, Any] | None
     blocks: list[Any] = []
     for label, block in (("least-squares", fit.get("adequacy")),
                          ("posterior predictive", (posterior or {}).get("adequacy"))):
-        if _failed(block):
+        if block is not None and _failed(block):
             blocks.append(Text(
                 f"The data reject the model ({label} adequacy tests): the intervals below "
                 "hold only if the model is right. " + "; ".join(block.get("failed") or [])
