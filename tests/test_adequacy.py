@@ -322,3 +322,37 @@ def test_posterior_predictive_checks_in_posterior_json(truths, tmp_path):
     assert a["kind"] == "posterior predictive" and 0 < a["draws"] <= 200
     assert {t["name"] for t in a["tests"]} >= {"residual_scale", "serial", "trend"}
     assert a["adequate"] is False and "temperature" in a["message"]
+
+
+@pytest.mark.parametrize("kind", ["constant", "proportional", "combined"])
+def test_error_models_and_weights_standardise_to_unit_normal(kind, rng):
+    """Standardised residuals follow the error model (sigma_i = s_abs, s_rel |f_i|, or
+    sqrt(s_abs^2 + (s_rel f_i)^2), divided by sqrt(w_i)): data drawn from that model give
+    residual-scale p-values whose rate at 0.05 lies inside a binomial 99.9 % interval."""
+    from kinfit.estimate.adequacy import standardised_residuals
+    from kinfit.estimate.problem import ErrorModel
+
+    em = ErrorModel(kind)
+    f = np.linspace(10.0, 800.0, 60)
+    w = np.where(np.arange(60) % 3 == 0, 4.0, 1.0)
+    sd = {"constant": 6.0 / np.sqrt(w), "proportional": 0.02 * f / np.sqrt(w),
+          "combined": np.sqrt(36.0 + (0.02 * f) ** 2) / np.sqrt(w)}[kind]
+    n_rep, hits = 400, 0
+    for _ in range(n_rep):
+        y = f + sd * rng.standard_normal(size=f.size)
+        z = standardised_residuals(y, f, error_model=em, s_abs=6.0, s_rel=0.02, weights=w)
+        assert z == pytest.approx((y - f) / sd, rel=1e-12)
+        hits += scale_test(z, dof=f.size).p <= 0.05
+    lo, hi = stats.binom.ppf([0.0005, 0.9995], n_rep, 0.05)
+    assert lo <= hits <= hi, hits
+
+
+def test_audit_caution_when_the_transport_aware_refit_is_inadequate():
+    """Behaviour only (no outside source applies): the audit's verdict gets a caution when its
+    transport-aware refit fails adequacy, and none when it passes or was not run."""
+    from kinfit.audit_report import refit_inadequacy
+
+    bad = {"adequate": False, "failed": ["the residuals trend with temperature"]}
+    assert "temperature" in refit_inadequacy({"transport_aware": {"adequacy": bad}})
+    assert refit_inadequacy({"transport_aware": {"adequacy": {"adequate": True}}}) is None
+    assert refit_inadequacy({"as_observed": {"adequacy": bad}}) is None
