@@ -214,10 +214,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
     code = EXIT_OK if result.converged else EXIT_FAILED
     if args.steps > 0:
         step(f"sampling the posterior ({args.steps} steps at most)")
-        post, _ = sample_study(study, result, out, SampleOptions(
+        post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
             progress=not args.quiet), argv=sys.argv)
         print(post.report())
+        _print_adequacy(content.get("adequacy"))
         if post.interrupted:
             # what was sampled is checkpointed; the report is still written from it
             code = EXIT_INTERRUPTED

@@ -289,7 +289,9 @@ def adequacy_lines(adequacy: Mapping[str, Any] | None) -> list[str]:
     verdict = adequacy.get("adequate")
     head = ("model adequacy: adequate" if verdict else
             "model adequacy: NOT ADEQUATE" if verdict is False else "model adequacy: not tested")
-    lines = [f"{head} ({adequacy.get('kind', '')}; {adequacy.get('rule', '')})"]
+    n = len(adequacy.get("tests", []))
+    lines = [f"{head} ({n} {adequacy.get('kind', '')} tests, Holm's rule at family-wise "
+             f"{adequacy.get('alpha', ALPHA):g})"]
     for t in adequacy.get("tests", []):
         if t.get("rejected"):
             where = f" [{t['factor']}" + (f", {t['subset']}" if t.get("subset") else "") + "]" \
