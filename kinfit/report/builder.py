@@ -19,7 +19,7 @@ import pandas as pd
 from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
 from kinfit.report import figures as fg
-from kinfit.report.adequacy_section import adequacy_section, adequacy_summary
+from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
