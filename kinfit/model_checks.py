@@ -265,7 +265,7 @@ def posterior_adequacy(model: Any, study: Any, post: Any, runs: Mapping[str, Map
     m = min(int(n_draws), draws.shape[0])
     pick = np.sort(rng.choice(draws.shape[0], size=m, replace=False))
     theta = draws[pick]
-    f = np.asarray(model.predict(theta[:, : post.n_model]), dtype=float)
+    f, _ = model.problem().predict_safe(theta[:, : post.n_model])  # failed rows are dropped
     vals: dict[str, Any] = dict(post.settings.scale_values)
     for k, name in enumerate(post.names[post.n_model:]):
         vals[name] = theta[:, post.n_model + k][:, None]
