@@ -50,6 +50,7 @@ from scipy import stats
 
 from kinfit.audit_film import FILM_EA_ALLOWANCE, FILM_EA_LIMIT, film_signature
 from kinfit.audit_lh import lh_local, lh_signatures, pore_not_tested
+from kinfit.audit_report import refit_inadequacy
 from kinfit.claims import (  # noqa: F401 - re-exported for callers of the audit
     BASES,
     Claim,
@@ -299,6 +300,7 @@ def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
         "joint_region_bound": bound, "inside_joint_region": bool(s_claim <= bound),
         "rejected": rejected, "regimes": {rid: r["regime"] for rid, r in res.runs.items()},
         "warnings": sorted({str(w.message) for w in caught}),
+        "adequacy": res.fit.get("adequacy"),
     }
 
 
@@ -621,6 +623,9 @@ def run_audit_command(args: argparse.Namespace) -> int:
     result.save(out)
     for c in result.claims:
         print(f"{c.name}: {c.verdict}")
+        caution = refit_inadequacy(c.reproduction)
+        if caution:
+            print(f"  caution: {caution}")
         for e in c.evidence:
             print(f"  - {e}")
         for m in c.missing:

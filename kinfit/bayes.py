@@ -23,6 +23,7 @@ from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
+from kinfit.model_checks import posterior_adequacy
 from kinfit.outputs import manifest, write_frame_atomic, write_json_atomic
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
@@ -163,6 +164,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         "runs": derived,
         "predictive": {"band": "central 90 % of the mean response", "draws": bands.n_draws,
                        "failed": bands.n_failed},
+        "adequacy": posterior_adequacy(model, study, post, fit.runs, n_draws=options.n_predictive,
+                                       rng=rng),
         "manifest": manifest(files=study.files, seed=options.seed, argv=argv),
     }
     del diag

@@ -314,7 +314,8 @@ def test_sections_follow_the_data(full_report):
     rep = full_report.report
     assert full_report.notes == ()  # no figure or section failed quietly
     keys = [s.key for s in rep.sections]
-    assert keys == ["summary", "campaign", "model", "parameters", "fit", "identifiability",
+    assert keys == ["summary", "campaign", "model", "parameters", "fit", "adequacy",
+                    "identifiability",
                     "comparison", "transport", "posterior", "validity", "cautions",
                     "reproducibility"]
     md = full_report.markdown.read_text(encoding="utf-8")
