@@ -25,6 +25,7 @@ from kinfit.diagnose.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next
 from kinfit.diagnose.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.errors import StudyError
 from kinfit.model import Model
+from kinfit.outputs import recorded_path
 from kinfit.results import FitResult
 from kinfit.study import Study
 
@@ -346,7 +347,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         if fit_result.study and fit_result.study != study.name:
             notes.append(f"the fit is of study '{fit_result.study}', not '{study.name}'")
         inputs = fit_result.manifest.get("inputs", {}) if fit_result.manifest else {}
-        changed = [Path(k).name for k, v in study.files.items()
+        recorded = {recorded_path(k, study.path): v for k, v in study.files.items()}
+        changed = [Path(k).name for k, v in recorded.items()
                    if k in inputs and inputs[k].get("sha256") not in (None, v)]
         if changed:
             notes.append(f"input file(s) {changed} changed since the fit; refit before relying "
@@ -359,7 +361,7 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         path = Path(posterior_dir) / DRAWS_FILE
         if path.is_file():
             posterior = read_draws(path)
-            notes.append(f"posterior draws from {path}")
+            notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)
     per_run = run_diagnostics(model, theta, thresholds=thresholds, draws=draws, n_draws=n_draws,
                               seed=seed)

@@ -604,7 +604,8 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
                                "transformed parameters)",
                 "criterion": "D-optimal: maximise log det(M0 + sum M_c), greedy then Fedorov "
                              "exchange (Fedorov 1972; Atkinson & Donev 1992)"},
-        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None),
+        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None,
+                                                     base=study.path),
     )
 
 
@@ -656,7 +657,7 @@ def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_plan_command(args: argparse.Namespace) -> int:
     """Run ``kinfit plan``; returns the exit code."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
     from kinfit.study import load_study
 
     study = load_study(args.study)
@@ -674,7 +675,7 @@ def run_plan_command(args: argparse.Namespace) -> int:
         base = default_grid(study, speed=rec["stirrer_speed"], diameter=rec["particle_diameter"])
         grid = replace(base, **{k: _levels(v) for k, v in given.items() if v is not None})
     plan = plan_runs(study, fit, n_runs=args.runs, grid=grid, seed=args.seed)
-    plan = replace(plan, manifest={**plan.manifest, "command": list(sys.argv)})
+    plan = replace(plan, manifest={**plan.manifest, "command": recorded_command(sys.argv)})
     out = Path(args.out) if args.out is not None else Path(args.fit) / "plan"
     prepare_out_dir(out)
     plan.save(out)

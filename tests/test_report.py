@@ -543,7 +543,9 @@ def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     assert re.search(r"runs\.csv \| [0-9a-f]{64} \| same", md)
     man = json.loads((out / "report_manifest.json").read_text())
     assert "report.html" in man["written"]
-    assert man["inputs"][str(out / "results.json")]["sha256"]
+    # recorded relative to the study file, never as an absolute path
+    assert man["inputs"]["../out/results.json"]["sha256"]
+    assert man["study"] == "study.toml" and str(tmp_path) not in json.dumps(man)
 
 
 def test_every_equation_renders():

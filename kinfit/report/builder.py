@@ -18,6 +18,7 @@ import pandas as pd
 
 from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
+from kinfit.outputs import recorded_command, recorded_path
 from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,
@@ -59,10 +60,7 @@ CAUTIONS = (
 )
 
 def _cmd(argv: Sequence[str]) -> str:
-    parts = [str(a) for a in argv]
-    if parts and Path(parts[0]).name in ("kinfit", "__main__.py", "cli.py"):
-        parts[0] = "kinfit"
-    return shlex.join(parts)
+    return shlex.join(recorded_command(argv))
 
 
 class ReportBuilder:
@@ -191,9 +189,9 @@ class ReportBuilder:
                                f"fitted: {', '.join(changed)} differ or are missing. Refit "
                                "before relying on this report.", "warning"))
         blocks.append(Facts((
-            ("study", f"{self.inp.study.name} ({self.inp.study.path})"),
+            ("study", f"{self.inp.study.name} ({Path(self.inp.study.path).name})"),
             ("model", str(res.model.get("label", ""))),
-            ("fit folder", str(self.inp.fit_dir)),
+            ("fit folder", self._rel(self.inp.fit_dir)),
             ("kinfit", str(get_path(res.manifest, "versions", "kinfit", default="?"))),
         )))
         return Section("summary", "Summary", tuple(blocks))
@@ -553,28 +551,36 @@ class ReportBuilder:
         if self.argv:
             blocks.append(Code(_cmd(self.argv), "command line of this report"))
         blocks.append(Code("\n".join(self._reproduce(man, opts)),
-                           "to reproduce (run from the folder the study paths are relative to)"))
+                           "to reproduce (run from the study file's folder)"))
         return Section("reproducibility", "Reproducibility", tuple(blocks))
 
     def _input_states(self) -> list[tuple[str, str, str]]:
         """(recorded path, recorded digest, state) of every input the fit recorded, compared
         with the study files read for this report (matched by path, else by file name)."""
+        base = Path(self.inp.study.path).resolve().parent
         now = {str(Path(k).resolve()): v for k, v in self.inp.study.files.items()}
         by_name = {Path(k).name: v for k, v in self.inp.study.files.items()}
         rows = []
         for path, info in ((self.res.manifest or {}).get("inputs") or {}).items():
             digest = info.get("sha256") if isinstance(info, Mapping) else str(info)
-            current = now.get(str(Path(path).resolve()), by_name.get(Path(path).name))
+            # recorded relative to the study file (older results: as typed or absolute)
+            current = now.get(str((base / path).resolve()),
+                              now.get(str(Path(path).resolve()), by_name.get(Path(path).name)))
             if current is None:
                 state = "not read by this study"
             else:
                 state = "same" if current == digest else "DIFFERENT from the fitted file"
-            rows.append((str(path), str(digest), state))
+            rows.append((self._rel(path) if Path(path).is_absolute() else str(path),
+                         str(digest), state))
         return rows
 
+    def _rel(self, path: str | Path) -> str:
+        """A path as the report records it: relative to the study file's folder."""
+        return recorded_path(path, self.inp.study.path)
+
     def _reproduce(self, man: Mapping[str, Any], opts: Mapping[str, Any]) -> list[str]:
-        study = str(self.inp.study.path)
-        fit_dir = str(self.inp.fit_dir)
+        study = Path(self.inp.study.path).name
+        fit_dir = self._rel(self.inp.fit_dir)
         cmd = ["kinfit", "fit", study, "--out", fit_dir]
         if man.get("seed") is not None:
             cmd += ["--seed", str(man["seed"])]
@@ -599,7 +605,7 @@ class ReportBuilder:
                 if sampler.get(key) is not None:
                     s += [flag, str(sampler[key])]
             lines.append(shlex.join(s))
-        out = str(self.out_dir) if self.out_dir is not None else fit_dir
+        out = self._rel(self.out_dir) if self.out_dir is not None else fit_dir
         lines.append(shlex.join(["kinfit", "report", study, "--fit", fit_dir, "--out", out]))
         return lines
 
