@@ -109,8 +109,8 @@ def write_posterior_files(study_path: Path, fit_dir: Path, *, seed: int = 5) -> 
     for n in [*names, "sigma"]:
         v = frame[n].to_numpy()
         q05, q50, q95 = np.quantile(v, [0.05, 0.5, 0.95])
-        summary[n] = {"median": q50, "q05": q05, "q95": q95, "hdi94": [float(np.quantile(
-            v, 0.03)), float(np.quantile(v, 0.97))], "rhat": 1.002, "ess": 410.0}
+        summary[n] = {"median": q50, "q05": q05, "q95": q95, "hdi90": [float(np.quantile(
+            v, 0.05)), float(np.quantile(v, 0.95))], "rhat": 1.002, "ess": 410.0}
     runs = {rid: {"effectiveness_factor": {"median": 1.0, "q05": 1.0, "q95": 1.0},
                   "thiele_modulus": {"median": 0.0, "q05": 0.0, "q95": 0.0},
                   "regime_probability": {"kinetic": 0.0 if r["regime"] == "film" else 0.9,
@@ -339,6 +339,10 @@ def test_csv_tables_carry_the_saved_numbers(fitted, full_report):
             assert params.loc[name, "ci95_bootstrap_hi"] == p["ci95_bootstrap"][1]
     post = json.loads((full_report.out_dir.parent / "fit" / "posterior.json").read_text())
     assert params.loc["sigma", "posterior_median"] == post["parameters"]["sigma"]["median"]
+    # the 90 % highest-density interval beside the central 90 % one (results contract: hdi90)
+    assert params.loc["sigma", "posterior_hdi90_lo"] == post["parameters"]["sigma"]["hdi90"][0]
+    assert not any("hdi94" in c for c in params.columns)
+    assert "HDI 90 %" in (full_report.out_dir / "report.md").read_text(encoding="utf-8")
     runs = pd.read_csv(full_report.out_dir / "runs.csv").set_index("run")
     for rid, r in res.runs.items():
         assert runs.loc[rid, "regime"] == r["regime"]

@@ -190,10 +190,12 @@ def test_autocorrelation_time_of_ar1_and_ess_of_iid():
     iid = rng.standard_normal((1000, 8, 2))
     assert np.all(np.abs(cv.ess_bulk(iid) / 8000 - 1) < 0.1)
     assert np.all(cv.split_rhat(iid) < 1.01)
-    # a central 94 % interval of a normal is the HDI: +-1.8808 sd (scipy.stats.norm.ppf(0.97))
+    # a central 90 % interval of a normal is its HDI: +-1.6449 sd (scipy.stats.norm.ppf(0.95));
+    # the default probability is 90 %, that of the central 5-95 % interval reported beside it
+    assert cv.HDI_PROB == 0.90
     h = cv.hdi(rng.standard_normal((40000, 2)))
-    np.testing.assert_allclose(h, [[-1.8808, 1.8808]] * 2, atol=0.06)
-    np.testing.assert_allclose(h[:, 1] - h[:, 0], 2 * 1.8808, atol=0.04)
+    np.testing.assert_allclose(h, [[-1.6449, 1.6449]] * 2, atol=0.05)
+    np.testing.assert_allclose(h[:, 1] - h[:, 0], 2 * 1.6449, atol=0.04)
 
 
 def test_rhat_flags_a_walker_that_disagrees():
@@ -572,8 +574,8 @@ def test_result_forms(linear_known_sigma, tmp_path):
     summary = post.summary()
     assert set(summary) == {"b0", "b1", "b2"}
     for entry in summary.values():
-        assert {"median", "q05", "q95", "hdi94", "rhat", "ess"} <= set(entry)
-        assert entry["hdi94"][0] < entry["median"] < entry["hdi94"][1]
+        assert {"median", "q05", "q95", "hdi90", "rhat", "ess"} <= set(entry)
+        assert entry["hdi90"][0] < entry["median"] < entry["hdi90"][1]
     d = json.loads(json.dumps(post.to_dict()))
     assert {"walkers", "steps", "burn_in", "seed"} <= set(d["sampler"])
     assert d["sampler"]["steps"] == post.chain_shape[0] and d["convergence"]["converged"]

@@ -36,8 +36,9 @@ RHAT_MAX = 1.01
 #: Smallest acceptable bulk and tail ESS (Vehtari et al. 2021 recommend at least 100 per chain
 #: for 4 chains, i.e. 400 in total).
 ESS_MIN = 400.0
-#: Probability of the highest-density interval reported (ArviZ's default, 94 %).
-HDI_PROB = 0.94
+#: Probability of the highest-density interval reported: 90 %, the same probability as the
+#: central 5-95 % interval beside it, so the two can be compared (results contract: hdi90).
+HDI_PROB = 0.90
 #: A mean acceptance fraction below this is mentioned in the verdict (Foreman-Mackey, Hogg,
 #: Lang & Goodman 2013, PASP 125, 306, advise 0.2-0.5; a note, not a failed test, because the
 #: stretch move in one to three dimensions accepts more than 0.5 without harm).

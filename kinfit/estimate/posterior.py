@@ -232,7 +232,7 @@ class Posterior:
 
     # -- summaries -----------------------------------------------------------------------------
     def summary(self) -> dict[str, dict[str, Any]]:
-        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi94`` [lo, hi], ``rhat``, ``ess``
+        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi90`` [lo, hi], ``rhat``, ``ess``
         (bulk), plus ``mean``, ``sd`` and ``ess_tail``; plain floats (None for NaN).
 
         This is the ``posterior`` block of ``posterior.json`` in the results contract.
@@ -251,7 +251,7 @@ class Posterior:
                 "median": _num(q[1, j]),
                 "q05": _num(q[0, j]),
                 "q95": _num(q[2, j]),
-                "hdi94": [_num(h[j, 0]), _num(h[j, 1])],
+                "hdi90": [_num(h[j, 0]), _num(h[j, 1])],
                 "rhat": _num(self.rhat[j]),
                 "ess": _num(self.ess[j]),
                 "mean": _num(mean[j]),
@@ -279,8 +279,8 @@ class Posterior:
 
         rows = []
         for name, s in self.summary().items():
-            row = {k: v for k, v in s.items() if k != "hdi94"}
-            row["hdi94_lo"], row["hdi94_hi"] = s["hdi94"]
+            row = {k: v for k, v in s.items() if k != "hdi90"}
+            row["hdi90_lo"], row["hdi90_hi"] = s["hdi90"]
             rows.append({"name": name, **row})
         return pd.DataFrame(rows).set_index("name")
 

@@ -307,8 +307,8 @@ class ReportBuilder:
             if post:
                 csv_row.update({"posterior_median": q.get("median"), "posterior_q05":
                                 q.get("q05"), "posterior_q95": q.get("q95"),
-                                "posterior_hdi94_lo": (q.get("hdi94") or [None, None])[0],
-                                "posterior_hdi94_hi": (q.get("hdi94") or [None, None])[1],
+                                "posterior_hdi90_lo": (q.get("hdi90") or [None, None])[0],
+                                "posterior_hdi90_hi": (q.get("hdi90") or [None, None])[1],
                                 "rhat": q.get("rhat"), "ess": q.get("ess")})
             csv_rows.append(csv_row)
         self.csv["parameters.csv"] = pd.DataFrame(csv_rows)

@@ -289,13 +289,13 @@ def posterior_section(rb: ReportBuilder) -> Section | None:
     summary = (post or {}).get("parameters") or {}
     if summary:
         rows = [(n, fg.pretty_unit(rb.units.get(n, "")), fmt(q.get("median")),
-                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi94")),
+                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi90")),
                  fmt(q.get("rhat"), 4), fmt(q.get("ess"), 3)) for n, q in summary.items()
                 if isinstance(q, Mapping)]
-        blocks.append(rb.table("Posterior summary: median, central 90 % interval, 94 % "
+        blocks.append(rb.table("Posterior summary: median, central 90 % interval, 90 % "
                                  "highest-density interval, R-hat and effective sample "
                                  "size.", ("quantity", "unit", "median", "5–95 %",
-                                           "HDI 94 %", "R-hat", "ESS"), rows,
+                                           "HDI 90 %", "R-hat", "ESS"), rows,
                                  numeric=(False, False) + (True,) * 5))
     if draws is not None:
         names = [c for c in draws.columns if c not in ("step", "walker", "log_prob",
