@@ -255,7 +255,7 @@ COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
              _lazy("kinfit.plan", "run_plan_command")),
     "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
                _lazy("kinfit.report", "run_report_command")),
-    "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
+    "diagnose": ("where transport limits the rate: model-free tests and per-run criteria",
                  _lazy("kinfit.diagnostics", "run_diagnose_command")),
     "criteria": ("transport criteria for one measurement, no fitting",
                  _lazy("kinfit.calculator", "run_criteria_command")),

@@ -44,9 +44,10 @@ SOURCES = {
                            "smooth curve against one per level (Bates & Watts 1988; Draper & "
                            "Smith 1998); cubic regression spline chosen by BIC (Schwarz 1978)",
     "model_free_rates": "one-way analysis of variance (Fisher 1925)",
-    "model_free_logic": "no change with stirrer speed: film negligible, says nothing of eta; "
-                        "no change with particle size at fixed speed: film negligible and "
-                        "eta = 1 (common practice)",
+    "model_free_logic": "a rate the stirrer speed does not change rules out a film limit and "
+                        "leaves eta open; a rate the particle size does not change, at one "
+                        "speed, rules out film and pore limits alike (eta = 1) (common "
+                        "practice)",
     "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                  "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
                  "apparent first order",

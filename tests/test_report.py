@@ -285,7 +285,8 @@ def test_embedded_images_decode(full_report):
         assert ET.fromstring(s).tag == "svg"
 
 
-def test_html_renders_in_headless_chromium(full_report, tmp_path):
+def _chromium() -> str:
+    """The headless browser; a skip locally when absent, a failure in CI."""
     exe = shutil.which("chromium") or ("/usr/bin/chromium"
                                        if Path("/usr/bin/chromium").exists() else None)
     if exe is None:
@@ -293,6 +294,11 @@ def test_html_renders_in_headless_chromium(full_report, tmp_path):
             pytest.fail("chromium is not installed but CI is set: install Debian's 'chromium' "
                         "package (apt-get install -y chromium) so the report can be rendered")
         pytest.skip("chromium not installed (set CI to make this a failure)")
+    return exe
+
+
+def test_html_renders_in_headless_chromium(full_report, tmp_path):
+    exe = _chromium()
     shot = tmp_path / "shot.png"
     profile = tmp_path / "profile"
     profile.mkdir()
@@ -308,6 +314,55 @@ def test_html_renders_in_headless_chromium(full_report, tmp_path):
     assert len(np.unique(rgb.reshape(-1, 3), axis=0)) > 50  # not a single colour
     non_white = np.mean(np.any(rgb < 235, axis=2))
     assert 0.03 < non_white < 0.9, non_white
+
+
+@pytest.mark.parametrize("width", [400, 1280])
+def test_page_fits_phone_and_desktop_width(full_report, tmp_path, width):
+    """At phone (400 px) and desktop (1280 px) width the page is no wider than the viewport
+    (wide tables and equations scroll inside their own boxes) and every equation is drawn at
+    no less than 90 % of its natural size (measured in Chromium; tests/page_probe.py)."""
+    from page_probe import measure
+
+    d = measure(_chromium(), full_report.html, width, tmp_path)
+    assert d["viewport"] == width
+    assert d["page"] <= width, d
+    assert d["overflow"] == [], d["overflow"]
+    assert len(d["equations"]) >= 10 and min(d["equations"]) >= 0.9, d["equations"]
+    for key, t in d["tables"].items():  # a table wider than its card scrolls inside it
+        assert t["card"] is not None and t["card"] <= width, key
+
+
+DEMO = Path(__file__).resolve().parent.parent / "examples" / "demo" / "study.toml"
+DEMO_FIT = Path(__file__).resolve().parent.parent / "reports" / "demo"
+
+
+@pytest.mark.skipif(not (DEMO_FIT / "diagnosis.json").is_file(),
+                    reason="the committed demo outputs are absent")
+def test_demo_model_free_matrix_fits_one_screen(tmp_path):
+    """The demo's 36 model-free tests read as one matrix (factor and held conditions by
+    temperature) no taller than one 1280 x 800 screen, with the method stated once per
+    kind of test and every cell's runs in the notes beneath; the report is built from the
+    committed demo outputs (invented demo data) and measured in Chromium."""
+    from page_probe import measure
+
+    from kinfit.report import build_report
+
+    exe = _chromium()
+    fit = tmp_path / "fit"
+    shutil.copytree(DEMO_FIT, fit)
+    res = build_report(DEMO, fit, tmp_path / "out")
+    diag = json.loads((fit / "diagnosis.json").read_text())
+    table = next(b for s in res.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Model-free tests"))
+    temps = {round(t["fixed"]["temperature"], 2) for t in diag["model_free"]}
+    assert len(table.rows) * len(temps) == len(diag["model_free"])
+    assert len(table.header) == 2 + len(temps)
+    md = (tmp_path / "out" / "report.md").read_text(encoding="utf-8")
+    assert md.count("Method") <= 2  # profiles against t, and against w t for the loading
+    assert all(" vs ".join(t["runs"]) in md for t in diag["model_free"])
+    d = measure(exe, res.html, 1280, tmp_path)
+    t8 = next(t for t in d["tables"].values() if "Model-free tests" in t["caption"])
+    assert t8["height"] <= 800 and t8["width"] <= t8["card"], t8
 
 
 def test_sections_follow_the_data(full_report):
@@ -543,8 +598,8 @@ def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     assert "wrote" in captured.out and "differs from the files" in captured.err
     md = (out / "report.md").read_text(encoding="utf-8")
     assert "obs.csv differ or are missing" in md
-    assert re.search(r"obs\.csv \| [0-9a-f]{64} \| \*\*DIFFERENT from the fitted file", md)
-    assert re.search(r"runs\.csv \| [0-9a-f]{64} \| same", md)
+    assert re.search(r"obs\.csv \| [0-9a-f]{16}… \| \*\*DIFFERENT from the fitted file", md)
+    assert re.search(r"runs\.csv \| [0-9a-f]{16}… \| same", md)
     man = json.loads((out / "report_manifest.json").read_text())
     assert "report.html" in man["written"]
     # recorded relative to the study file, never as an absolute path

@@ -41,6 +41,7 @@ from kinfit.report.content import (
 from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
+from kinfit.report.matrix import SetCell, set_matrix
 from kinfit.report.transport_sections import posterior_section, transport_section
 from kinfit.study import FACTORS, comparison_sets
 
@@ -58,6 +59,37 @@ CAUTIONS = (
     "Check every number before use, and defer to local codes, standards and licensed "
     "engineering practice.",
 )
+
+def _runs_temperature_unit(study: Any) -> str | None:
+    """The unit of the runs table's temperature column as written (None if unreadable)."""
+    from kinfit.units import parse_header
+
+    ref = get_path(getattr(study, "raw", None), "data", "runs")
+    if isinstance(ref, Mapping):
+        ref = ref.get("file")
+    if not isinstance(ref, str):
+        return None
+    path = Path(study.path).parent / ref
+    try:
+        if path.suffix.lower() in (".xlsx", ".xls"):
+            cols = pd.read_excel(path, nrows=0).columns
+        else:
+            cols = pd.read_csv(path, nrows=0).columns
+        for c in cols:
+            h = parse_header(str(c), where=path.name)
+            if h.name == "temperature":
+                return h.unit
+    except Exception:  # noqa: BLE001 - a display preference only; K is the fallback
+        return None
+    return None
+
+
+def _short(digest: Any) -> str:
+    """A SHA-256 digest as tables show it: its first 16 hex digits (the manifests keep all
+    64)."""
+    text = str(digest)
+    return text[:16] + "…" if len(text) > 16 else text
+
 
 def _cmd(argv: Sequence[str]) -> str:
     return shlex.join(recorded_command(argv))
@@ -89,6 +121,27 @@ class ReportBuilder:
         self.units = {n: str(p.get("unit", "")) for n, p in self.res.parameters.items()}
         for name in (self.inp.posterior or {}).get("parameters", {}) or {}:
             self.units.setdefault(name, "mol/m^3" if name == "sigma" else "1")
+        self.celsius = _runs_temperature_unit(inputs.study) in ("degC", "°C", "celsius", "C")
+        self.varied = tuple(inputs.study.varied_factors())
+
+    def factor_text(self, factor: str, value: float) -> str:
+        """A factor's SI value in the unit the reader expects: temperature in °C when the
+        runs table gave it in degC, the others as :func:`factor_text`."""
+        if factor == "temperature" and self.celsius:
+            return f"{float(value) - 273.15:.4g} °C"
+        if factor == "catalyst_loading":  # kg/m³ = g/L, the unit a bench chemist writes
+            return f"{float(value):.4g} g/L"
+        if factor in FACTOR_LABEL:
+            _, unit, scale = FACTOR_LABEL[factor]
+            return f"{float(value) * scale:.4g} {unit}"
+        return factor_text(factor, value)
+
+    def temperature(self, value: Any, sig: int = 5) -> str:
+        """A temperature [K] as the user wrote it (°C when the runs table is in degC)."""
+        if not isinstance(value, int | float):
+            return "–"
+        return (f"{fmt(float(value) - 273.15, sig)} °C" if self.celsius
+                else f"{fmt(float(value), sig)} K")
 
     # ------------------------------------------------------------------ numbering helpers
     def table(self, caption: str, header: Sequence[str], rows: Sequence[Sequence[str]], *,
@@ -226,7 +279,8 @@ class ReportBuilder:
                        numeric=(False,) + (True,) * 8 + (False,), csv="runs.csv"),
         ]
         varied = study.varied_factors()
-        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels ({', '.join(factor_text(f, x) for x in v)})"
+        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels "
+                 f"({', '.join(self.factor_text(f, x) for x in v)})"
                  for f, v in varied.items()]
         blocks.append(Heading("Factors varied"))
         blocks.append(Items(tuple(items) or ("none: every run at the same conditions",)))
@@ -234,7 +288,7 @@ class ReportBuilder:
         if fixed:
             blocks.append(Text("Held constant: " + ", ".join(fixed) + "."))
         blocks.append(Heading("Transport tests the campaign supports"))
-        set_rows: list[tuple[str, ...]] = []
+        set_cells: list[SetCell] = []
         meanings: list[str] = []
         for factor, meaning in TEST_MEANING.items():
             label = FACTOR_LABEL[factor][0]
@@ -245,19 +299,19 @@ class ReportBuilder:
                 continue
             meanings.append(f"{label} ({len(sets)} set{'s' if len(sets) != 1 else ''}): tests "
                             f"{meaning}")
-            set_rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
-                      ", ".join(factor_text(f, x) for f, x in s.fixed.items() if f in varied),
-                      ", ".join(s.runs)) for s in sets]
+            set_cells += [SetCell(factor, tuple(s.values), dict(s.fixed), " vs ".join(s.runs))
+                          for s in sets]
         if "temperature" not in varied:
             meanings.append("temperature: one level only, so the activation energy is not "
                             "identified")
         blocks.append(Items(tuple(meanings)))
-        if set_rows:
+        if set_cells:
+            m = set_matrix(set_cells, list(varied), self.factor_text)
             blocks.append(self.table(
                 "Sets of runs that differ in one factor only (the other factors equal within "
-                "1 %): the classic transport tests; their statistical outcome is in the "
-                "transport diagnosis.", ("factor varied", "levels", "others held at", "runs"),
-                set_rows))
+                "1 %): the classic transport tests, each cell the runs of one set at the "
+                "conditions of its row and column; their statistical outcome is in the "
+                "transport diagnosis.", m.header, m.rows))
         return Section("campaign", "Campaign", tuple(blocks))
 
     def _parameters(self) -> Section:
@@ -528,14 +582,14 @@ class ReportBuilder:
         if rows:
             blocks.append(self.table("Input files of the fit with their SHA-256 digests, "
                                      "compared with the study files this report read.",
-                                     ("file", "SHA-256 at the fit", "study read now"), rows,
+                                     ("file", "SHA-256 at the fit (first 16 digits)", "study read now"), rows,
                                      tones=tones))
             if any(t[2] == "fail" for t in tones):
                 self.notes.append("the study read for this report differs from the files "
                                   "that were fitted (see the reproducibility section)")
-        read = [(name, digest) for name, digest in self.inp.input_hashes.items()]
+        read = [(name, _short(digest)) for name, digest in self.inp.input_hashes.items()]
         blocks.append(self.table("Files of the fit folder this report was built from.",
-                                 ("file", "SHA-256"), read))
+                                 ("file", "SHA-256 (first 16 digits)"), read))
         versions = man.get("versions") or {}
         if versions:
             blocks.append(Facts(tuple((k, str(v)) for k, v in versions.items())))
@@ -571,7 +625,7 @@ class ReportBuilder:
             else:
                 state = "same" if current == digest else "DIFFERENT from the fitted file"
             rows.append((self._rel(path) if Path(path).is_absolute() else str(path),
-                         str(digest), state))
+                         _short(digest), state))
         return rows
 
     def _rel(self, path: str | Path) -> str:

@@ -12,7 +12,7 @@ from typing import Any
 
 import pandas as pd
 
-__all__ = ["Text", "Items", "Facts", "Heading", "Equation", "Table", "FigureBlock", "Code",
+__all__ = ["Text", "Items", "Details", "Facts", "Heading", "Equation", "Table", "FigureBlock", "Code",
            "Section", "Report", "fmt", "fmt_interval", "fmt_p", "TONES", "FACTOR_LABEL",
            "CRITERIA_KEYS", "factor_text", "get_path"]
 
@@ -37,6 +37,15 @@ class Items:
     items: tuple[str, ...]
     tone: str = "plain"
     kind: str = "items"
+
+
+@dataclass(frozen=True)
+class Details:
+    """A list folded behind a one-line summary (HTML ``<details>``; a list in Markdown)."""
+
+    summary: str
+    items: tuple[str, ...]
+    kind: str = "details"
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ exist; every optional field is read with a default.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -18,6 +19,7 @@ from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
+    Details,
     Equation,
     Facts,
     Heading,
@@ -25,13 +27,13 @@ from kinfit.report.content import (
     Section,
     Table,
     Text,
-    factor_text,
     fmt,
     fmt_interval,
     fmt_p,
     get_path,
 )
 from kinfit.report.equations import EQUATIONS
+from kinfit.report.matrix import SetCell, set_matrix
 
 if TYPE_CHECKING:
     from kinfit.report.builder import ReportBuilder
@@ -224,27 +226,7 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
     if tests or diag.get("not_possible"):
         blocks.append(Heading("What the data show without a model"))
     if tests:
-        rows: list[Sequence[str]] = []
-        tones: list[list[str | None]] = []
-        for t in tests:
-            vals = t.get("values") or []
-            factor = str(t.get("factor", ""))
-            vtext = " vs ".join(factor_text(factor, v) if factor in FACTOR_LABEL and
-                                isinstance(v, int | float) else str(v) for v in vals)
-            rows.append((factor, ", ".join(map(str, t.get("runs") or [])), vtext,
-                         str(t.get("test", "")), fmt(t.get("statistic"), 4),
-                         str(t.get("df", "")), fmt_p(t.get("p_value")),
-                         fmt(t.get("different")) if t.get("different") is not None else "–",
-                         str(t.get("conclusion", ""))))
-            diff = t.get("different")
-            tone: list[str | None] = [None] * 7
-            tone += [None if diff is None else ("fail" if diff else "ok"), None]
-            tones.append(tone)
-        blocks.append(rb.table("Model-free tests: runs that differ in one factor only, "
-                                 "compared with a test that accounts for noise.",
-                                 ("factor", "runs", "levels", "test", "statistic", "df",
-                                  "p", "different", "conclusion"), rows, tones=tones,
-                                 numeric=(False,) * 4 + (True,) * 3 + (False, False)))
+        blocks += _model_free_blocks(rb, tests)
     impossible = [f"{d.get('factor', '')}: {d.get('message', '')}"
                   for d in diag.get("not_possible") or [] if isinstance(d, Mapping)]
     if impossible:
@@ -261,6 +243,63 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
                                  ("T [K]", "N [rpm]", "d_p [µm]", "note"), next_rows,
                                  numeric=(True, True, True, False)))
     return blocks
+
+def _p_text(p: Any) -> str:
+    """``p = 0.085`` or ``p < 1×10⁻⁶``."""
+    text = fmt_p(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+def _model_free_blocks(rb: ReportBuilder, tests: Sequence[Mapping[str, Any]]) -> list[Any]:
+    """The model-free tests as one matrix (factor and held conditions by temperature; each
+    cell the p-value and verdict), the method stated once, and what lies behind each cell
+    (runs, statistic, conclusion) folded beneath."""
+    cells = []
+    for t in tests:
+        factor = str(t.get("factor", ""))
+        vals = tuple(v for v in t.get("values") or [] if isinstance(v, int | float))
+        diff = t.get("different")
+        verdict = "–" if diff is None else ("differs" if diff else "no difference")
+        df = t.get("df")
+        dft = (f" ({', '.join(map(str, df))} df)" if isinstance(df, Sequence)
+               and not isinstance(df, str) else "")
+        spline = re.search(r"\d+ interior knots?", str(t.get("test", "")))
+        measure = str(t.get("measure", "")).strip()
+        note = (" vs ".join(map(str, t.get("runs") or [])) + f": statistic "
+                f"{fmt(t.get('statistic'), 3)}{dft}, {_p_text(t.get('p_value'))}"
+                + (f", {spline.group(0)}" if spline else "")
+                + (f"; {measure}" if measure else "") + ". " + str(t.get("conclusion", "")))
+        cells.append(SetCell(factor, vals, {k: v for k, v in (t.get("fixed") or {}).items()
+                                            if isinstance(v, int | float)},
+                             f"{_p_text(t.get('p_value'))}, {verdict}",
+                             None if diff is None else ("fail" if diff else "ok"), note))
+    m = set_matrix([c for c in cells if c.factor in FACTOR_LABEL], list(rb.varied),
+                   rb.factor_text)
+    blocks: list[Any] = []
+    methods: dict[str, list[str]] = {}
+    for t in tests:
+        # the per-set details (knots, measured span) go to the cell's note
+        key = re.sub(r"\d+ interior knots?", "interior knots chosen per set",
+                     str(t.get("test", "")).strip())
+        label = FACTOR_LABEL.get(str(t.get("factor")), (str(t.get("factor")),))[0]
+        if key and label not in methods.setdefault(key, []):
+            methods[key].append(label)
+    alpha = (rb.inp.diagnosis or {}).get("alpha")
+    level = f" at the {fmt(alpha, 2)} level" if isinstance(alpha, int | float) else ""
+    for key, labels in methods.items():
+        who = "" if len(methods) == 1 else f" ({', '.join(labels)})"
+        blocks.append(Text(f"Method{who}: {key}. \"differs\" means the runs of a set do not "
+                           f"follow one curve{level}; green: no difference, red: differs."))
+    blocks.append(rb.table("Model-free tests: each cell is one set of runs that differ in "
+                           "the factor of its row only, held at the conditions of its row "
+                           "and column; p-value and verdict.", m.header, m.rows,
+                           tones=m.tones))
+    if m.notes:
+        blocks.append(Details("Runs, statistic and conclusion behind each cell",
+                              tuple(f"{r} at {c}: {n}" if c not in ("", "result")
+                                    else f"{r}: {n}" for r, c, n in m.notes)))
+    return blocks
+
 
 def posterior_section(rb: ReportBuilder) -> Section | None:
     """The posterior: sampler settings, convergence, summary, corner plot and traces."""
