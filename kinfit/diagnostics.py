@@ -207,7 +207,7 @@ class Diagnosis:
         for rec in self.next_runs:
             sp = "any" if rec.stirrer_speed is None else f">= {rec.stirrer_speed * 60:.4g} rpm"
             dp = "none found" if rec.particle_diameter is None else (
-                f"<= {rec.particle_diameter * 1e6:.4g} um")
+                f"<= {rec.particle_diameter * 1e6:.4g} µm")
             lines.append(f"   {rec.temperature:.5g} K: stirrer speed {sp}, particles {dp}")
             lines.append(f"     {rec.note}")
         if self.notes:

@@ -618,3 +618,37 @@ def test_every_equation_renders():
         assert root.tag == "svg" and all(el.get("id", f"t{i}-").startswith(f"t{i}-")
                                          for el in root.iter())
     assert equation_svg(r"\frac{a}{", prefix="bad") is None
+
+
+def test_regime_probability_has_one_source(fitted, tmp_path):
+    """A run's regime probability appears in the console of 'kinfit diagnose' (from
+    diagnosis.json) and in the report: the report takes it from diagnosis.json too, so the two
+    agree even when the sampler's own summary (another subsample of draws) differs."""
+    from kinfit.report import build_report
+
+    path, fit_dir = fitted
+    fit = tmp_path / "fit"
+    shutil.copytree(fit_dir, fit)
+    write_posterior_files(path, fit)
+    write_diagnosis_file(fit)
+    diag = json.loads((fit / "diagnosis.json").read_text())
+    diag["runs"] = {"S1": {"regime_probability": {"kinetic": 0.09, "film": 0.91, "pore": 0.0,
+                                                  "mixed": 0.0}}}
+    diag["model"] = {"n_draws": 200}
+    (fit / "diagnosis.json").write_text(json.dumps(diag))
+    res = build_report(path, fit, tmp_path / "out")
+    table = next(b for s in res.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Posterior probability of each regime"))
+    assert "diagnosis.json, 200 posterior draws" in table.caption
+    assert [r for r in table.rows if r[0] == "S1"][0][1:3] == ("0.09", "0.91")
+
+
+def test_units_as_the_user_wrote_them(full_report):
+    """Temperatures in °C when the runs table gave degC, activation energy in kJ/mol (the
+    trade's unit; the CSV keeps SI), micrometres written µm, never 'um' (common practice)."""
+    md = (full_report.out_dir / "report.md").read_text(encoding="utf-8")
+    assert "activation_energy [kJ/mol]" in md and "J/mol]" not in md.replace("kJ/mol]", "")
+    assert "**T_ref:** 50 °C" in md
+    assert not re.search(r"\d um\b|\bum\b", md)
+    params = pd.read_csv(full_report.out_dir / "parameters.csv").set_index("parameter")
+    assert params.loc["activation_energy", "unit"] == "J/mol"

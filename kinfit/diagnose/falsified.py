@@ -368,7 +368,7 @@ class FalsifiedResult:
 
 
 def _where(g: ApparentGroup) -> str:
-    return (f"{g.stirrer_speed * 60:.4g} rpm, {g.particle_diameter * 1e6:.4g} um"
+    return (f"{g.stirrer_speed * 60:.4g} rpm, {g.particle_diameter * 1e6:.4g} µm"
             + (f", batch {g.group}" if g.group else ""))
 
 

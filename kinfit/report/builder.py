@@ -136,12 +136,25 @@ class ReportBuilder:
             return f"{float(value) * scale:.4g} {unit}"
         return factor_text(factor, value)
 
+    @staticmethod
+    def shown(value: Any, unit: Any) -> tuple[Any, str]:
+        """A value (number, interval or None) and its SI unit as the report shows them:
+        energies in kJ/mol, the trade's unit; everything else unchanged. CSV files and JSON
+        keep SI."""
+        if str(unit) == "J/mol":
+            if isinstance(value, int | float) and not isinstance(value, bool):
+                return value / 1000.0, "kJ/mol"
+            if isinstance(value, list | tuple):
+                return [None if v is None else v / 1000.0 for v in value], "kJ/mol"
+            return value, "kJ/mol"
+        return value, str(unit or "")
+
     def temperature(self, value: Any, sig: int = 5) -> str:
         """A temperature [K] as the user wrote it (°C when the runs table is in degC)."""
         if not isinstance(value, int | float):
             return "–"
-        return (f"{fmt(float(value) - 273.15, sig)} °C" if self.celsius
-                else f"{fmt(float(value), sig)} K")
+        return (f"{float(value) - 273.15:.{sig - 1}g} °C" if self.celsius
+                else f"{float(value):.{sig}g} K")
 
     # ------------------------------------------------------------------ numbering helpers
     def table(self, caption: str, header: Sequence[str], rows: Sequence[Sequence[str]], *,
@@ -201,10 +214,11 @@ class ReportBuilder:
         varying = [(n, p) for n, p in res.parameters.items() if p.get("vary", True)]
         items = []
         for n, p in varying:
-            ci = fmt_interval(p.get("ci95"))
-            unit = fg.pretty_unit(p.get("unit"))
+            ci = fmt_interval(self.shown(p.get("ci95"), p.get("unit"))[0])
+            est, unit = self.shown(p.get("estimate"), p.get("unit"))
+            unit = fg.pretty_unit(unit)
             unit = "" if unit == "–" else f" {unit}"
-            items.append(f"{n} = {fmt(p.get('estimate'))}{unit}, 95 % interval {ci} "
+            items.append(f"{n} = {fmt(est)}{unit}, 95 % interval {ci} "
                          f"({p.get('ci_method') or 'linear'})")
         blocks.append(Heading("Estimates"))
         blocks.append(Items(tuple(items)))
@@ -252,7 +266,7 @@ class ReportBuilder:
     def _campaign(self) -> Section:
         study = self.inp.study
         frame = study.frame()
-        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [kg/m³]", "C₀ [mol/m³]",
+        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [g/L]", "C₀ [mol/m³]",
                   "points", "span [min]", "group")
         rows = []
         for r in study.runs:
@@ -338,15 +352,21 @@ class ReportBuilder:
                                   "estimate": scale})
             q = post.get(name) or {}
             flag = " †" if p.get("at_bound") else ""
-            row = [f"{name} [{fg.pretty_unit(p.get('unit'))}]{flag}", fmt(p.get("estimate")),
-                   fmt(p.get("stderr"), 3) if p.get("vary", True) else "fixed"]
+            u = p.get("unit")
+            shown_unit = self.shown(None, u)[1]
+            row = [f"{name} [{fg.pretty_unit(shown_unit)}]{flag}",
+                   fmt(self.shown(p.get("estimate"), u)[0]),
+                   fmt(self.shown(p.get("stderr"), u)[0], 3) if p.get("vary", True)
+                   else "fixed"]
             tone: list[str | None] = [None, None, None]
             for k in labels:
                 if has[k]:
-                    row.append(fmt_interval(p.get(k), 3) if p.get("vary", True) else "–")
+                    row.append(fmt_interval(self.shown(p.get(k), u)[0], 3)
+                               if p.get("vary", True) else "–")
                     tone.append(None)
             if post:
-                row += [fmt(q.get("median")), fmt_interval([q.get("q05"), q.get("q95")], 3)
+                row += [fmt(self.shown(q.get("median"), u)[0]),
+                        fmt_interval(self.shown([q.get("q05"), q.get("q95")], u)[0], 3)
                         if q else "–"]
                 tone += [None, None]
             rows.append(row)

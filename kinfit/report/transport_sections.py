@@ -140,16 +140,29 @@ def _order(rb: ReportBuilder) -> float:
     return float(np.median(orders)) if orders else 1.0
 
 def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Table:
+    # one source for a number the console prints too: the diagnosis' probabilities (what
+    # 'kinfit diagnose' shows) when it has them, else the sampler's summary
+    diag = rb.inp.diagnosis or {}
+    diag_runs = {rid: r for rid, r in (diag.get("runs") or {}).items()
+                 if isinstance(r, Mapping) and r.get("regime_probability")}
+    n_draws = get_path(diag, "model", "n_draws")
+    if diag_runs:
+        post_runs = diag_runs
+        where = (f"diagnosis.json, {n_draws} posterior draws" if n_draws
+                 else "diagnosis.json")
+    else:
+        where = "posterior.json"
     rows: list[Sequence[str]] = []
     tones: list[list[str | None]] = []
     for rid, pr in post_runs.items():
         prob = pr.get("regime_probability") or {}
         best = max(prob, key=lambda k: prob.get(k) or 0.0) if prob else None
-        rows.append([rid] + [fmt(prob.get(g), 3) for g in REGIMES])
+        rows.append([rid] + ["–" if prob.get(g) is None else f"{float(prob[g]):.2f}"
+                             for g in REGIMES])
         tone: list[str | None] = [None]
         tones.append(tone + [g if g == best else None for g in REGIMES])
     return rb.table("Posterior probability of each regime per run (share of the "
-                      "evaluated draws).", ["run", *REGIMES], rows, tones=tones,
+                      f"evaluated draws; from {where}).", ["run", *REGIMES], rows, tones=tones,
                       numeric=(False,) + (True,) * len(REGIMES))
 
 def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
@@ -233,14 +246,16 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
         blocks.append(Items(tuple(impossible), "note"))
     nxt = [d for d in diag.get("next_runs") or [] if isinstance(d, Mapping)]
     if nxt:
-        next_rows = [(fmt(d.get("temperature"), 5), fmt((d.get("stirrer_speed") or 0) * 60, 4)
+        next_rows = [(rb.temperature(d.get("temperature")).split(" ")[0],
+                      fmt((d.get("stirrer_speed") or 0) * 60, 4)
                  if isinstance(d.get("stirrer_speed"), int | float) else "–",
                  fmt((d.get("particle_diameter") or 0) * 1e6, 4)
                  if isinstance(d.get("particle_diameter"), int | float) else "–",
                  str(d.get("note", ""))) for d in nxt]
         blocks.append(Heading("Runs that would make the data intrinsic"))
         blocks.append(rb.table("Suggested conditions (from the diagnosis).",
-                                 ("T [K]", "N [rpm]", "d_p [µm]", "note"), next_rows,
+                                 ("T [°C]" if rb.celsius else "T [K]", "N [rpm]", "d_p [µm]",
+                                  "note"), next_rows,
                                  numeric=(True, True, True, False)))
     return blocks
 
@@ -327,8 +342,11 @@ def posterior_section(rb: ReportBuilder) -> Section | None:
             blocks.append(Facts(tuple((f"τ {k}", fmt(v, 3)) for k, v in tau.items())))
     summary = (post or {}).get("parameters") or {}
     if summary:
-        rows = [(n, fg.pretty_unit(rb.units.get(n, "")), fmt(q.get("median")),
-                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi90")),
+        sh = rb.shown
+        rows = [(n, fg.pretty_unit(sh(None, rb.units.get(n, ""))[1]),
+                 fmt(sh(q.get("median"), rb.units.get(n, ""))[0]),
+                 fmt_interval(sh([q.get("q05"), q.get("q95")], rb.units.get(n, ""))[0]),
+                 fmt_interval(sh(q.get("hdi90"), rb.units.get(n, ""))[0]),
                  fmt(q.get("rhat"), 4), fmt(q.get("ess"), 3)) for n, q in summary.items()
                 if isinstance(q, Mapping)]
         blocks.append(rb.table("Posterior summary: median, central 90 % interval, 90 % "
