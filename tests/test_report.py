@@ -652,3 +652,20 @@ def test_units_as_the_user_wrote_them(full_report):
     assert not re.search(r"\d um\b|\bum\b", md)
     params = pd.read_csv(full_report.out_dir / "parameters.csv").set_index("parameter")
     assert params.loc["activation_energy", "unit"] == "J/mol"
+
+
+def test_plain_sentences_and_thresholds_in_words(full_report):
+    """No optimiser message, Python list or snake_case threshold key in the prose; the
+    thresholds table has one row per criterion, in words."""
+    from kinfit.report.builder import plain_message
+
+    assert plain_message("`ftol` termination condition is satisfied.") == (
+        "the sum of squares stopped falling (relative change below the tolerance)")
+    assert plain_message("something else.") == "something else"
+    md = (full_report.out_dir / "report.md").read_text(encoding="utf-8")
+    assert "termination condition" not in md and "['" not in md
+    table = next(b for s in full_report.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Thresholds in use"))
+    labels = [r[0] for r in table.rows]
+    assert len(labels) == len(set(labels)) and not any(re.search(r"[a-z]_[a-z]", x)
+                                                       for x in labels), labels

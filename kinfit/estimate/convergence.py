@@ -280,14 +280,14 @@ def diagnose(
     if bad:
         worst = int(np.nanargmax(rhat)) if np.any(np.isfinite(rhat)) else 0
         reasons.append(
-            f"R-hat of {bad} is not below {rhat_max} (worst '{names[worst]}' "
+            f"R-hat of {', '.join(bad)} is not below {rhat_max} (worst '{names[worst]}' "
             f"{rhat[worst]:.3f}): the walkers disagree; run longer or start nearer the optimum."
         )
     ess = np.minimum(eb, et)
     low = [n for n, e in zip(names, ess, strict=True) if not e >= ess_min]
     if low:
         reasons.append(
-            f"effective sample size of {low} is below {ess_min:g} (smallest "
+            f"effective sample size of {', '.join(low)} is below {ess_min:g} (smallest "
             f"{np.nanmin(ess) if np.any(np.isfinite(ess)) else float('nan'):.0f}): too few "
             "independent draws; raise max_steps."
         )

@@ -84,6 +84,32 @@ def _runs_temperature_unit(study: Any) -> str | None:
     return None
 
 
+#: a film share at or above this counts as film resistance worth a warning: the 5 % rate error
+#: the Carberry criterion allows (Carberry 1976: Ca < 0.05/|n|)
+FILM_SHARE_CUT = 0.05
+
+_SOLVER_WORDS = (
+    ("both `ftol` and `xtol`", "the sum of squares and the parameters both stopped changing "
+                               "(relative changes below the tolerances)"),
+    ("`ftol`", "the sum of squares stopped falling (relative change below the tolerance)"),
+    ("`xtol`", "the parameters stopped moving (relative step below the tolerance)"),
+    ("`gtol`", "the gradient vanished (below the tolerance)"),
+    ("maximum number of function evaluations", "the evaluation budget ran out before the "
+                                               "fit settled"),
+)
+
+
+def plain_message(message: Any) -> str:
+    """The optimiser's stopping message as a plain sentence fragment (scipy's
+    least_squares messages name the tolerance that stopped it)."""
+    text = str(message or "").strip()
+    low = text.lower()
+    for key, words in _SOLVER_WORDS:
+        if key.lower() in low:
+            return words
+    return text.rstrip(".") or "no message"
+
+
 def _short(digest: Any) -> str:
     """A SHA-256 digest as tables show it: its first 16 hex digits (the manifests keep all
     64)."""
@@ -204,7 +230,7 @@ class ReportBuilder:
         f, res = self.res.fit, self.res
         blocks: list[Any] = []
         if f.get("converged"):
-            blocks.append(Text(f"The least-squares fit converged ({f.get('message', '')}).",
+            blocks.append(Text(f"The least-squares fit converged: {plain_message(f.get('message'))}.",
                                "ok"))
         else:
             blocks.append(Text(
@@ -419,7 +445,7 @@ class ReportBuilder:
         f = self.res.fit
         obs = self.inp.observations
         facts = [("converged", "yes" if f.get("converged") else "NO"),
-                 ("message", str(f.get("message", "")))]
+                 ("stopping rule", plain_message(f.get("message")))]
         for key, label in (("n_obs", "observations"), ("n_params", "parameters varied"),
                            ("dof", "degrees of freedom"), ("sse", "SSE"),
                            ("sigma", "residual standard deviation"),
@@ -565,11 +591,12 @@ class ReportBuilder:
                          "mol/m³"))
         items = ["Use the kinetics only inside these ranges; extrapolation in temperature, "
                  "particle size, stirrer speed or concentration is not supported by the data."]
-        film_runs = [rid for rid, r in res.runs.items()
-                     if r.get("regime") == "film" or (r.get("passes") or {}).get("carberry")
-                     is False]
+        film_runs = [rid for rid, r in res.runs.items() if r.get("regime") == "film"
+                     or float((r.get("shares") or {}).get("film") or 0.0) >= FILM_SHARE_CUT]
         if film_runs:
-            items.append("Film resistance matters in runs " + ", ".join(film_runs) + ": their "
+            items.append(f"The film takes {FILM_SHARE_CUT:.0%} or more of the driving force "
+                         "(the rate error the kinetic criteria allow) in runs "
+                         + ", ".join(film_runs) + ": their "
                          "observed rates depend on agitation and particle size in this vessel "
                          "and must not be carried to another reactor; only the intrinsic "
                          "parameters, with the film model, may be.")

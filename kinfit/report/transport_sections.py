@@ -41,6 +41,16 @@ if TYPE_CHECKING:
 __all__ = ["transport_section", "posterior_section"]
 
 
+#: the per-run criteria's limits in words (the diagnosis also records the inputs they are
+#: derived from, such as the Carberry limit times |n|; those stay in diagnosis.json)
+_THRESHOLD_WORDS = {
+    "carberry": "Carberry number (film), at most",
+    "weisz_prater": "Weisz–Prater number Ψ_L (pores), at most",
+    "mears": "Mears number (film), at most",
+    "effectiveness_factor": "effectiveness factor η, at least",
+}
+
+
 def _thresholds(rb: ReportBuilder) -> tuple[dict[str, float], dict[str, str]]:
     diag = rb.inp.diagnosis or {}
     first = next(iter(rb.res.runs.values()), {})
@@ -87,7 +97,10 @@ def transport_section(rb: ReportBuilder) -> Section:
         Equation(EQUATIONS["mears"], "Mears number with the particle density"),
         Equation(EQUATIONS["shares"], "resistances in series per kg: film, reaction, pore"),
     ]
-    trows = [(k, fmt(v, 4), sources.get(k, "")) for k, v in limits.items()]
+    trows = []
+    for k, words in _THRESHOLD_WORDS.items():  # one row per criterion, in words
+        if isinstance(limits.get(k), int | float):
+            trows.append((words, fmt(limits[k], 4), sources.get(k, "")))
     blocks.append(rb.table("Thresholds in use and their sources.",
                              ("criterion", "limit", "source"), trows,
                              numeric=(False, True, False)))
