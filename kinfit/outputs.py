@@ -18,11 +18,31 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["recorded_path", "recorded_command", "atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
+__all__ = ["CAUTIONS", "cautions_markdown", "recorded_path", "recorded_command", "atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
            "manifest", "to_plain", "prepare_out_dir"]
 
 _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint", "arviz-base",
               "arviz-stats")
+
+
+#: the caution every written output that feeds design or planning carries (report, audit.md,
+#: plan.md)
+CAUTIONS = (
+    "These results feed reactor design, and reactor design can hurt people. kinfit estimates "
+    "kinetic and transport parameters from the data it was given; it does not assess safety.",
+    "Scale-up, heat removal, exotherms and thermal runaway, pressure relief, and the hazards "
+    "of hydrogen and other flammable or toxic gases under pressure are outside this tool.",
+    "Rates affected by external mass transfer cannot be carried to another reactor, and no "
+    "prediction outside the fitted ranges of temperature, stirrer speed, particle size and "
+    "concentration is warranted (see the limits of validity).",
+    "Check every number before use, and defer to local codes, standards and licensed "
+    "engineering practice.",
+)
+
+
+def cautions_markdown() -> list[str]:
+    """The cautions as a Markdown section (lines)."""
+    return ["## Cautions", "", *(f"- {t}" for t in CAUTIONS)]
 
 
 def recorded_path(path: str | Path, base: str | Path | None = None) -> str:

@@ -501,7 +501,10 @@ class Plan:
                          f"{_hw(s['half_width_before'])} | {_hw(s['half_width_after'])} | "
                          f"{ratio} | {_hw(s['half_width_random'])} |")
         lines += ["", "Expected half-widths assume the estimates and the noise stay as fitted "
-                  "(linearised information; Bates & Watts 1988)."]
+                  "(linearised information; Bates & Watts 1988).", ""]
+        from kinfit.outputs import cautions_markdown
+
+        lines += cautions_markdown()
         return "\n".join(lines)
 
     def save(self, folder: str | Path) -> Path:

@@ -1,4 +1,4 @@
-"""No output carries a machine's absolute path: every command is run on a study in a temporary
+"""No output carries a machine's absolute path, and the written reports carry the cautions: every command is run on a study in a temporary
 folder, from another working folder, with absolute paths on its command line, and every file it
 writes is searched for the temporary folder's absolute name (the rule of the results contract:
 paths relative to the study file, outputs are shared between machines; common practice for
@@ -91,3 +91,9 @@ def test_no_output_contains_an_absolute_path(tmp_path, monkeypatch):
     for sub in ("out", "sim", "plan", "pred", "audit"):
         bad += _offending(tmp_path / sub, needles)
     assert bad == [], "\n".join(bad)
+    # every written output that feeds design or planning carries the cautions (scale-up,
+    # runaway, pressure and hydrogen hazards; local codes and licensed engineering practice)
+    for md in (out / "report.md", tmp_path / "plan" / "plan.md", tmp_path / "audit" / "audit.md"):
+        text = md.read_text(encoding="utf-8")
+        for word in ("Scale-up", "thermal runaway", "hydrogen", "licensed engineering practice"):
+            assert word in text, (md.name, word)

@@ -18,7 +18,7 @@ import pandas as pd
 
 from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
-from kinfit.outputs import recorded_command, recorded_path
+from kinfit.outputs import CAUTIONS, recorded_command, recorded_path
 from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,
@@ -48,17 +48,6 @@ from kinfit.study import FACTORS, comparison_sets
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
 
 #: the safety paragraph of README.md, in substance
-CAUTIONS = (
-    "These results feed reactor design, and reactor design can hurt people. kinfit estimates "
-    "kinetic and transport parameters from the data it was given; it does not assess safety.",
-    "Scale-up, heat removal, exotherms and thermal runaway, pressure relief, and the hazards "
-    "of hydrogen and other flammable or toxic gases under pressure are outside this tool.",
-    "Rates affected by external mass transfer cannot be carried to another reactor, and no "
-    "prediction outside the fitted ranges of temperature, stirrer speed, particle size and "
-    "concentration is warranted (see the limits of validity).",
-    "Check every number before use, and defer to local codes, standards and licensed "
-    "engineering practice.",
-)
 
 def _runs_temperature_unit(study: Any) -> str | None:
     """The unit of the runs table's temperature column as written (None if unreadable)."""
