@@ -13,7 +13,7 @@ Conventions (stated once, used everywhere):
   for a 5 % rate error (Carberry 1976; Kapteijn & Moulijn, Handbook of Heterogeneous Catalysis).
 - Mears number r_obs rho_p R n / (kc Cb) with the particle density and R = dp/2 (Mears 1971);
   threshold 0.15. With the particle density it equals 3 n Ca.
-- Regime (results contract, DESIGN.md): resistances in series per kg, film 1/(kc a_m), reaction
+- Regime (kinfit's results contract): resistances in series per kg, film 1/(kc a_m), reaction
   1/k1, pore (1/eta - 1)/k1 with k1 = r(Cs)/Cs; the share above one half names the regime,
   otherwise "mixed".
 """

@@ -22,7 +22,7 @@ def _state(k, n, kfa, Cb, *, De=None, dp=1e-4, rho=1500.0, geometry="sphere"):
 
 
 def test_regime_rule_of_the_contract():
-    # DESIGN.md results contract: the share above one half names the regime, else "mixed"
+    # kinfit's results contract: the share above one half names the regime, else "mixed"
     labels = regime_label(np.array([0.6, 0.1, 0.2, 0.4]), np.array([0.2, 0.7, 0.1, 0.3]),
                           np.array([0.2, 0.2, 0.7, 0.3]))
     assert labels.tolist() == ["film", "pore", "kinetic", "mixed"]
@@ -31,7 +31,7 @@ def test_regime_rule_of_the_contract():
 def test_carberry_identity_and_mears_relation():
     # steady film: Ca = 1 - Cs/Cb exactly (derived from kc a (Cb - Cs) = r_obs; Carberry 1976);
     # with the particle density the Mears number equals 3 n Ca for spheres (Mears 1971,
-    # REFERENCES.md §3.2, derived)
+    # Carberry 1976, derived)
     dp, rho, n = 1e-4, 1500.0, 1.5
     a_m = external_area("sphere", dp, rho)
     kc = 3e-5
@@ -49,14 +49,14 @@ def test_carberry_identity_and_mears_relation():
 
 def test_carberry_threshold_scales_with_order():
     # Ca < 0.05/|n| for a 5 % rate error (Kapteijn & Moulijn, Handbook of Heterogeneous
-    # Catalysis, 2008; REFERENCES.md §3.2): the rate deficit 1 - (1 - Ca)^n at the threshold
+    # Catalysis, 2008; Carberry 1976; Mears 1971): the rate deficit 1 - (1 - Ca)^n at the threshold
     for n, deficit in [(1.0, 0.05), (2.0, 0.04938), (0.5, 0.05132)]:
         ca = Thresholds().to_dict("sphere", n)["carberry"]
         assert 1 - (1 - ca) ** n == pytest.approx(deficit, abs=5e-5)
 
 
 def test_weisz_prater_threshold_in_the_l_normalisation():
-    # Psi_L = Psi_R (L/R)^2 with R = dp/2 (REFERENCES.md §3.1: Psi_L = Psi_R/9 for a sphere)
+    # Psi_L = Psi_R (L/R)^2 with R = dp/2 (Weisz & Prater 1954: Psi_L = Psi_R/9 for a sphere)
     t = Thresholds()
     assert t.weisz_prater("sphere") == pytest.approx(0.3 / 9)
     assert t.weisz_prater("slab") == pytest.approx(0.3)
@@ -64,7 +64,7 @@ def test_weisz_prater_threshold_in_the_l_normalisation():
 
 def test_film_only_series_resistance_first_order():
     # first order behind a film: 1/k_obs = 1/(kc a_m) + 1/k (resistances in series;
-    # Satterfield 1970; REFERENCES.md §1, overall factor with eta = 1)
+    # Satterfield 1970; Thiele 1939; Aris 1957, overall factor with eta = 1)
     k_ref, kfa = 0.3, 2e-4  # k in mol/(kg s) at C_ref = 1000 mol/m^3 -> k1 = 3e-4 m^3/(kg s)
     Cb = np.array([50.0, 500.0, 1000.0])
     obs, _ = _state(k_ref, 1.0, kfa, Cb)

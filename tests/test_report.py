@@ -441,7 +441,7 @@ def test_number_formatting():
 
 @pytest.mark.parametrize(("geometry", "column"), [("slab", 0), ("cylinder", 1), ("sphere", 2)])
 def test_first_order_effectiveness_reference_values(geometry, column):
-    """Closed forms (Thiele 1939; Aris 1957) in the Aris normalisation against REFERENCES.md
+    """Closed forms (Thiele 1939; Aris 1957) in the Aris normalisation against values computed from them
     Table 1 ([calc], checked there against solve_bvp to 10 decimals)."""
     from kinfit.report.figures import eta_first_order
 
@@ -455,7 +455,7 @@ def test_first_order_effectiveness_reference_values(geometry, column):
     phi = np.array(sorted(table))
     expected = np.array([table[p][column] for p in phi])
     np.testing.assert_allclose(eta_first_order(phi, geometry), expected, rtol=0, atol=2e-10)
-    # small-modulus series: eta ~ 1 - c phi^2, c = 1/3, 1/2, 3/5 (REFERENCES.md section 1)
+    # small-modulus series: eta ~ 1 - c phi^2, c = 1/3, 1/2, 3/5 (Thiele 1939; Aris 1957)
     c = (1 / 3, 1 / 2, 3 / 5)[column]
     small = np.array([1e-4, 5e-3])
     np.testing.assert_allclose(1 - eta_first_order(small, geometry), c * small**2, rtol=2e-3)

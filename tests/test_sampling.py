@@ -551,7 +551,7 @@ def test_option_and_prior_errors():
 
 
 def test_start_on_a_bound_is_moved_inside():
-    # methanol-like case (REFERENCES.md 8.3): an optimum on the zero bound of a linear parameter
+    # methanol-like case (COPS 3.0 methanol, Maria 1989): an optimum on the zero bound of a linear parameter
     x = np.linspace(0.0, 1.0, 8)
     space = Space(
         ("a", "b"), np.array([0.0, -np.inf]), np.array([np.inf, np.inf]), ("none", "none")

@@ -33,7 +33,7 @@ same F test, which is one-way analysis of variance (Fisher 1925; checked against
 ``scipy.stats.f_oneway`` in the tests). When no level has replicates, the noise is taken from
 replicate rates elsewhere in the study, if there are any (constant noise assumed).
 
-Conclusions follow the trade's logic (common practice; DESIGN.md of kinfit): no change with
+Conclusions follow the trade's logic (common practice): no change with
 stirrer speed rules out film resistance only (and only if the film coefficient does change with
 speed over that range); no change with particle size at a fixed speed rules out film and pore
 resistance together; no change of the rate per catalyst mass with the loading rules out a supply

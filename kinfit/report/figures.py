@@ -156,7 +156,7 @@ def eta_first_order(phi: Array, geometry: str) -> Array:
     """First-order isothermal effectiveness factor in the Aris normalisation (L = Vp/Sp).
 
     slab: tanh(phi)/phi; infinite cylinder: I1(2 phi)/(phi I0(2 phi)); sphere:
-    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957; REFERENCES.md section 1). Small
+    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957). Small
     moduli use the series 1 - c phi^2 (+ next term), c = 1/3, 1/2, 3/5, where the closed forms
     lose digits; the cylinder uses exponentially scaled Bessel functions.
     """
