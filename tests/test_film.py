@@ -27,8 +27,8 @@ from kinfit.transport.film import (
 )
 from kinfit.transport.properties import make_fluid
 
-# worked example (eps = N_p N^3 D^5/V, common practice; Sano, Yamaguchi & Adachi 1974): water at 25 degC with nu = 8.927e-7 m^2/s and
-# D_m = 1e-9 m^2/s (Sc = 892.7), dp = 50 um, Rushton N_p = 5, D = 0.05 m, V = 1 L, D/T = 0.45.
+# Worked example (values computed here from the formulas named in each test): water at
+# 25 degC with nu = 8.927e-7 m^2/s (from memory) and D_m = 1e-9 m^2/s (Sc = 892.7), dp = 50 um, Rushton N_p = 5, D = 0.05 m, V = 1 L, D/T = 0.45.
 EXAMPLE_FLUID = make_fluid(None, viscosity=8.927e-4, density=1000.0, diffusivity=1e-9)
 TANK = {"power_number": 5.0, "impeller_diameter": 0.05, "liquid_volume": 1e-3}
 DP = 50e-6
@@ -53,8 +53,9 @@ def slurry(correlation: str) -> SlurryFilm:
 
 
 def test_worked_example_power_and_kolmogorov_reynolds():
-    """worked example computed from eps = N_p N^3 D^5/V (common practice) and Sano, Yamaguchi & Adachi 1974: eps = N_p N^3 D^5 / V and
-    Re_K = eps^(1/3) dp^(4/3) / nu at N = 5, 10, 20 1/s."""
+    """Worked example: eps = N_p N^3 D^5 / V (definition of the power number) and the
+    Kolmogorov particle Reynolds number Re_K = eps^(1/3) dp^(4/3) / nu (common practice) at
+    N = 5, 10, 20 1/s, values computed from those formulas."""
     N = WORKED_EXAMPLE[:, 0]
     eps = specific_power(N, **TANK)
     np.testing.assert_allclose(eps, WORKED_EXAMPLE[:, 1], rtol=5e-5)
@@ -67,9 +68,10 @@ def test_worked_example_power_and_kolmogorov_reynolds():
     [("sano", 3), ("armenante_kirwan", 4), ("levins_glastonbury", 5)],
 )
 def test_worked_example_sherwood_numbers(correlation, column):
-    """worked example computed from Sano, Yamaguchi & Adachi 1974 and the Kolmogorov Reynolds number (common practice): Sh at N = 5, 10, 20 1/s for Sano,
+    """Worked example: Sh at N = 5, 10, 20 1/s from the published correlations of Sano,
     Yamaguchi & Adachi (1974), Armenante & Kirwan (1989) and Levins & Glastonbury (1972),
-    through the film model (k_c dp / D_m), to the table's 5 significant figures."""
+    through the film model (k_c dp / D_m), against values computed from those correlations
+    (5 significant figures)."""
     film = slurry(correlation)
     N = WORKED_EXAMPLE[:, 0]
     kc = film.kc(N, DP, 298.15, {})
@@ -78,8 +80,8 @@ def test_worked_example_sherwood_numbers(correlation, column):
 
 @pytest.mark.parametrize(("correlation", "slope"), [("sano", 0.591), ("armenante_kirwan", 0.415)])
 def test_worked_example_local_speed_exponent(correlation, slope):
-    """worked example computed from eps = N_p N^3 D^5/V (common practice) and Sano, Yamaguchi & Adachi 1974: d ln k_c / d ln N at N = 10 1/s is 0.591
-    (Sano) and 0.415 (Armenante & Kirwan)."""
+    """Worked example: d ln k_c / d ln N at N = 10 1/s is 0.591 for Sano, Yamaguchi & Adachi
+    (1974) and 0.415 for Armenante & Kirwan (1989), computed from the two correlations."""
     film = slurry(correlation)
     h = 1e-4
     kc = film.kc(10.0 * np.exp([-h, h]), DP, 298.15, {})
@@ -88,7 +90,7 @@ def test_worked_example_local_speed_exponent(correlation, slope):
 
 def test_slurry_stagnant_limit_is_two():
     """Sh -> 2 as the power input vanishes: steady diffusion from a sphere into a stagnant
-    liquid (derived; Ranz & Marshall 1952; Sano, Yamaguchi & Adachi 1974; common practice)."""
+    liquid (derived; the limit of Ranz & Marshall 1952)."""
     for correlation in ("sano", "armenante_kirwan", "levins_glastonbury"):
         kc = slurry(correlation).kc(1e-15, DP, 298.15, {})
         assert float(kc * DP / 1e-9) == pytest.approx(2.0, abs=1e-6)
