@@ -669,3 +669,45 @@ def test_plain_sentences_and_thresholds_in_words(full_report):
     labels = [r[0] for r in table.rows]
     assert len(labels) == len(set(labels)) and not any(re.search(r"[a-z]_[a-z]", x)
                                                        for x in labels), labels
+
+
+def _legend_covers_points(fig) -> int:
+    """How many plotted markers lie inside a legend box (display coordinates)."""
+    fig.canvas.draw()
+    boxes = [leg.get_window_extent() for ax in fig.axes for leg in [ax.get_legend()] if leg]
+    boxes += [leg.get_window_extent() for leg in fig.legends]
+    hits = 0
+    for ax in fig.axes:
+        for line in ax.get_lines():
+            if line.get_linestyle() not in ("None", "none", ""):
+                continue
+            xy = ax.transData.transform(np.column_stack(line.get_data()).astype(float))
+            hits += sum(int(b.contains(x, y)) for b in boxes for x, y in xy)
+    return hits
+
+
+def test_legends_stay_off_the_data():
+    """The residual and Arrhenius legends sit outside the axes: no marker under a legend box;
+    in the Arrhenius plot the runs are drawn above the apparent constants (invented points)."""
+    from kinfit.report import figures as fg
+
+    rng = np.random.default_rng(4)
+    n = 60
+    frame = pd.DataFrame({"run": np.repeat(["A", "B", "C"], n // 3),
+                          "time [s]": np.tile(np.linspace(0, 3600, n // 3), 3),
+                          "fitted": rng.uniform(100, 500, n), "residual": rng.normal(0, 2, n)})
+    fig = fg.residuals_figure(frame, regimes={"A": "kinetic", "B": "film", "C": "pore"},
+                              unit="mol/m³", sigma=2.0)
+    assert _legend_covers_points(fig) == 0
+    T = [313.15, 328.15, 343.15]
+    fig = fg.arrhenius_figure(k_ref=1.0, activation_energy=6e4, reference_temperature=328.15,
+                              temperatures=T, k_unit="mol/(kg s)",
+                              per_run=[("R1", t, float(np.exp(-6e4 / 8.314 * (1 / t - 1 / 328.15))),
+                                        "kinetic") for t in T],
+                              apparent=[(t, float(np.exp(-6e4 / 8.314 * (1 / t - 1 / 328.15))))
+                                        for t in T], apparent_label="apparent at 300 rpm, 10 µm")
+    assert _legend_covers_points(fig) == 0
+    ax = fig.axes[0]
+    runs = next(ln for ln in ax.get_lines() if ln.get_label() == "run (kinetic)")
+    app = next(ln for ln in ax.get_lines() if ln.get_label().startswith("apparent at"))
+    assert runs.get_zorder() > app.get_zorder()

@@ -178,6 +178,16 @@ def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Tabl
                       f"evaluated draws; from {where}).", ["run", *REGIMES], rows, tones=tones,
                       numeric=(False,) + (True,) * len(REGIMES))
 
+def _apparent_conditions(rb: ReportBuilder, cond: Any) -> str:
+    """The stirrer speed and particle size the apparent constants were taken at, in words
+    (``"300 rpm, 10 µm"``); empty when the diagnosis does not say."""
+    if not isinstance(cond, Mapping):
+        return ""
+    parts = [rb.factor_text(f, cond[f]) for f in ("stirrer_speed", "particle_diameter")
+             if isinstance(cond.get(f), int | float)]
+    return ", ".join(parts)
+
+
 def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
     params, m = rb.res.parameters, rb.res.model
     k_ref, ea = params.get("k_ref"), params.get("activation_energy")
@@ -209,18 +219,23 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
                 if isinstance(p, Mapping) and isinstance(p.get("temperature"), int | float)
                 and isinstance(p.get("k_apparent"), int | float)]
     temps = [r.temperature for r in rb.inp.study.runs]
+    where = _apparent_conditions(rb, fals.get("conditions"))
+    app_label = f"apparent at {where}" if where else "apparent (diagnosis)"
     b = rb.figure("arrhenius", "Arrhenius plot: intrinsic k(T) from k_ref and E_a (line, "
                     "95 % band by the delta method); each run's effective constant "
                     "r_obs/(C₀/C_ref)^n at its initial conditions (markers by regime: below "
                     "the line where transport slows the run)" + ("; apparent constants "
                                                                 "per temperature from "
-                                                                "the diagnosis (crosses)"
+                                                                "the diagnosis (plus signs"
+                                                                + (f", taken at {where}"
+                                                                   if where else "") + ")"
                                                                 if apparent else "") + ".",
                     lambda: fg.arrhenius_figure(
                         k_ref=float(k_ref["estimate"]), activation_energy=float(
                             ea["estimate"]), reference_temperature=float(t_ref),
                         temperatures=temps, k_unit=str(k_ref.get("unit", "")),
-                        covariance=cov, per_run=per_run, apparent=apparent),
+                        covariance=cov, per_run=per_run, apparent=apparent,
+                        apparent_label=app_label),
                     "Arrhenius plot")
     if b:
         blocks.append(b)
@@ -228,7 +243,8 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
         facts = []
         for key, label, scale, unit in (
             ("intrinsic_activation_energy", "intrinsic E_a", 1e-3, "kJ/mol"),
-            ("apparent_activation_energy", "apparent E_a", 1e-3, "kJ/mol"),
+            ("apparent_activation_energy", "apparent E_a" + (f" at {where}" if where else ""),
+             1e-3, "kJ/mol"),
             ("intrinsic_order", "intrinsic order", 1.0, ""),
             ("apparent_order", "apparent order", 1.0, ""),
         ):
@@ -238,7 +254,7 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
         ci = fals.get("apparent_activation_energy_ci95")
         if isinstance(ci, list | tuple) and len(ci) == 2 and all(
                 isinstance(x, int | float) for x in ci):
-            facts.append(("apparent E_a, 95 %",
+            facts.append(("apparent E_a" + (f" at {where}" if where else "") + ", 95 %",
                           fmt_interval([ci[0] * 1e-3, ci[1] * 1e-3]) + " kJ/mol"))
         if facts:
             blocks.append(Facts(tuple(facts)))
