@@ -24,7 +24,7 @@ from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
 from kinfit.model_checks import posterior_adequacy
-from kinfit.outputs import manifest, write_frame_atomic, write_json_atomic
+from kinfit.outputs import manifest, recorded_path, write_frame_atomic, write_json_atomic
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import Study
@@ -154,7 +154,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
     diag = post.diagnostics
     content = {
         "parameters": post.summary(),
-        "sampler": post.settings.to_dict(),
+        "sampler": {**post.settings.to_dict(), "checkpoint": recorded_path(
+            out / "posterior_checkpoint.npz", study.path)},
         "convergence": {
             "converged": bool(post.converged), "reasons": list(post.reasons),
             "verdict": post.verdict, "acceptance_fraction": float(post.acceptance_fraction),
@@ -166,7 +167,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
                        "failed": bands.n_failed},
         "adequacy": posterior_adequacy(model, study, post, fit.runs, n_draws=options.n_predictive,
                                        rng=rng),
-        "manifest": manifest(files=study.files, seed=options.seed, argv=argv),
+        "manifest": manifest(files=study.files, seed=options.seed, argv=argv,
+                             base=study.path),
     }
     del diag
     write_json_atomic(out / "posterior.json", content)

@@ -57,7 +57,7 @@ def _cmd_simulate(args: argparse.Namespace) -> int:
     write_frame_atomic(out / "runs.csv", runs_frame(sim.runs))
     write_json_atomic(out / "simulation.json", {
         "study": study.name, "parameters": dict(study.parameters.values()), "runs": sim.runs,
-        "manifest": manifest(files=study.files),
+        "manifest": manifest(files=study.files, base=study.path),
     })
     print(runs_frame(sim.runs).to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     print(f"\nwrote {out / 'predictions.csv'}, {out / 'runs.csv'}, {out / 'simulation.json'}")
@@ -286,7 +286,7 @@ COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
              _lazy("kinfit.plan", "run_plan_command")),
     "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
                _lazy("kinfit.report", "run_report_command")),
-    "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
+    "diagnose": ("where transport limits the rate: model-free tests and per-run criteria",
                  _lazy("kinfit.diagnostics", "run_diagnose_command")),
     "criteria": ("transport criteria for one measurement, no fitting",
                  _lazy("kinfit.calculator", "run_criteria_command")),

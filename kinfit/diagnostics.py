@@ -25,6 +25,7 @@ from kinfit.diagnose.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next
 from kinfit.diagnose.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.errors import StudyError
 from kinfit.model import Model
+from kinfit.outputs import recorded_path
 from kinfit.results import FitResult
 from kinfit.study import Study
 
@@ -43,9 +44,10 @@ SOURCES = {
                            "smooth curve against one per level (Bates & Watts 1988; Draper & "
                            "Smith 1998); cubic regression spline chosen by BIC (Schwarz 1978)",
     "model_free_rates": "one-way analysis of variance (Fisher 1925)",
-    "model_free_logic": "no change with stirrer speed: film negligible, says nothing of eta; "
-                        "no change with particle size at fixed speed: film negligible and "
-                        "eta = 1 (common practice)",
+    "model_free_logic": "a rate the stirrer speed does not change rules out a film limit and "
+                        "leaves eta open; a rate the particle size does not change, at one "
+                        "speed, rules out film and pore limits alike (eta = 1) (common "
+                        "practice)",
     "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                  "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
                  "apparent first order",
@@ -203,7 +205,7 @@ class Diagnosis:
         for rec in self.next_runs:
             sp = "any" if rec.stirrer_speed is None else f">= {rec.stirrer_speed * 60:.4g} rpm"
             dp = "none found" if rec.particle_diameter is None else (
-                f"<= {rec.particle_diameter * 1e6:.4g} um")
+                f"<= {rec.particle_diameter * 1e6:.4g} µm")
             lines.append(f"   {rec.temperature:.5g} K: stirrer speed {sp}, particles {dp}")
             lines.append(f"     {rec.note}")
         if self.notes:
@@ -347,7 +349,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         if fit_result.study and fit_result.study != study.name:
             notes.append(f"the fit is of study '{fit_result.study}', not '{study.name}'")
         inputs = fit_result.manifest.get("inputs", {}) if fit_result.manifest else {}
-        changed = [Path(k).name for k, v in study.files.items()
+        recorded = {recorded_path(k, study.path): v for k, v in study.files.items()}
+        changed = [Path(k).name for k, v in recorded.items()
                    if k in inputs and inputs[k].get("sha256") not in (None, v)]
         if changed:
             notes.append(f"input file(s) {changed} changed since the fit; refit before relying "
@@ -360,7 +363,7 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         path = Path(posterior_dir) / DRAWS_FILE
         if path.is_file():
             posterior = read_draws(path)
-            notes.append(f"posterior draws from {path}")
+            notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)
     per_run = run_diagnostics(model, theta, thresholds=thresholds, draws=draws, n_draws=n_draws,
                               seed=seed)

@@ -501,7 +501,10 @@ class Plan:
                          f"{_hw(s['half_width_before'])} | {_hw(s['half_width_after'])} | "
                          f"{ratio} | {_hw(s['half_width_random'])} |")
         lines += ["", "Expected half-widths assume the estimates and the noise stay as fitted "
-                  "(linearised information; Bates & Watts 1988)."]
+                  "(linearised information; Bates & Watts 1988).", ""]
+        from kinfit.outputs import cautions_markdown
+
+        lines += cautions_markdown()
         return "\n".join(lines)
 
     def save(self, folder: str | Path) -> Path:
@@ -604,7 +607,8 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
                                "transformed parameters)",
                 "criterion": "D-optimal: maximise log det(M0 + sum M_c), greedy then Fedorov "
                              "exchange (Fedorov 1972; Atkinson & Donev 1992)"},
-        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None),
+        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None,
+                                                     base=study.path),
     )
 
 
@@ -656,7 +660,7 @@ def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_plan_command(args: argparse.Namespace) -> int:
     """Run ``kinfit plan``; returns the exit code."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
     from kinfit.study import load_study
 
     study = load_study(args.study)
@@ -674,7 +678,7 @@ def run_plan_command(args: argparse.Namespace) -> int:
         base = default_grid(study, speed=rec["stirrer_speed"], diameter=rec["particle_diameter"])
         grid = replace(base, **{k: _levels(v) for k, v in given.items() if v is not None})
     plan = plan_runs(study, fit, n_runs=args.runs, grid=grid, seed=args.seed)
-    plan = replace(plan, manifest={**plan.manifest, "command": list(sys.argv)})
+    plan = replace(plan, manifest={**plan.manifest, "command": recorded_command(sys.argv)})
     out = Path(args.out) if args.out is not None else Path(args.fit) / "plan"
     prepare_out_dir(out)
     plan.save(out)

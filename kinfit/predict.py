@@ -365,7 +365,7 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
               "failed": n_failed, "seed": seed,
               "meaning": f"central {level:.0%} of the mean response over parameter draws"},
         film=film, warnings=tuple(notes),
-        manifest=manifest(files=study.files, seed=seed, argv=None),
+        manifest=manifest(files=study.files, seed=seed, argv=None, base=study.path),
     )
 
 
@@ -463,7 +463,7 @@ def add_predict_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_predict_command(args: argparse.Namespace) -> int:
     """Run ``kinfit predict``; returns the exit code (1 when the extrapolation is refused)."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
     from kinfit.study import load_study
 
     study = load_study(args.study)
@@ -484,7 +484,7 @@ def run_predict_command(args: argparse.Namespace) -> int:
         for reason in exc.reasons:
             print(f"kinfit: refused: {reason}", file=sys.stderr)
         return 1
-    pred = replace(pred, manifest={**pred.manifest, "command": list(sys.argv)})
+    pred = replace(pred, manifest={**pred.manifest, "command": recorded_command(sys.argv)})
     prepare_out_dir(out)
     pred.save(out)
     print(pred.report())

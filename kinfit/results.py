@@ -1,4 +1,4 @@
-"""Immutable, JSON-serialisable fit results: the results contract of DESIGN.md.
+"""Immutable, JSON-serialisable fit results: kinfit's results contract (README).
 
 A :class:`FitResult` holds plain data only (dicts of floats and strings, and a predictions
 table); it never re-runs a computation. ``to_dict()`` is field for field what

@@ -83,7 +83,7 @@ ROWS = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (50, 
 def test_first_order_matches_series_resistance_closed_form(tmp_path):
     # first order: 1/k_obs = 1/(kc a_m) + 1/(eta k1), eta of a sphere in the Aris
     # normalisation eta = (1/phi)[1/tanh(3 phi) - 1/(3 phi)], phi = L sqrt(k1 rho_p/De),
-    # L = dp/6, a_m = 6/(rho_p dp) (Aris 1957; Satterfield 1970; REFERENCES.md section 1);
+    # L = dp/6, a_m = 6/(rho_p dp) (Aris 1957; Satterfield 1970);
     # batch: C = C0 exp(-w k_obs t)
     rows = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (200, 500)]
     study, _, _ = synthetic(tmp_path, rows, k=2.0, kc=2e-5)

@@ -5,8 +5,8 @@ The study is the invented demo campaign (examples/demo, data generated from stat
 parameters); chains here are short on purpose, so most are not converged. The sampler itself
 is checked against analytic posteriors and by simulation-based calibration in
 tests/test_sampling.py; these tests check what the command writes and how it behaves. The
-results contract is DESIGN.md's "Results contract" (posterior.json: {name: {median, q05, q95,
-hdi94, rhat, ess}} and the sampler settings walkers, steps, burn-in, seed). These are checks of
+results contract is kinfit's own (posterior.json: {name: {median, q05, q95, hdi90, rhat,
+ess}} and the sampler settings walkers, steps, burn-in, seed). These are checks of
 kinfit's own contract and command-line behaviour; no outside source applies beyond those named in
 tests/test_sampling.py.
 """
@@ -61,7 +61,7 @@ def test_posterior_json_holds_the_results_contract(short_run, fitted):
     for name, entry in post["parameters"].items():
         for key in ("median", "q05", "q95", "rhat", "ess"):
             assert math.isfinite(entry[key]), (name, key)
-        lo, hi = entry["hdi94"]
+        lo, hi = entry["hdi90"]
         assert entry["q05"] <= entry["median"] <= entry["q95"], name
         assert lo <= entry["median"] <= hi, name
     sampler = post["sampler"]
