@@ -574,6 +574,8 @@ SECTION_KEYS: dict[str, frozenset[str]] = {
     "fit": frozenset({"compare"}),
     "fluid": frozenset({"solvent", "viscosity", "density", "molar_mass", "association_factor",
                         "solute_molar_volume", "diffusivity", "diffusivity_temperature"}),
+    # the stirred vessel, for the just-suspended check (kinfit/suspension.py)
+    "vessel": frozenset({"impeller_diameter", "suspension_constant", "notes"}),
 }
 SECTIONS = frozenset({*SECTION_KEYS, "kinetics", "film", "parameters"})
 
@@ -638,6 +640,15 @@ def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]
         else:
             out[key] = value
     return out
+
+
+def _check_vessel(sec: dict[str, Any], path: Path) -> None:
+    """The [vessel] section: a positive impeller diameter and Zwietering's constant S."""
+    _quantities({k: v for k, v in sec.items() if k == "impeller_diameter"}, "vessel", path)
+    s = sec.get("suspension_constant")
+    if s is not None and (isinstance(s, bool) or not isinstance(s, int | float) or not s > 0):
+        raise StudyError(f"{path.name} [vessel].suspension_constant must be a positive number "
+                         f"(Zwietering's S, typically 4 to 12), got {printable(repr(s))}")
 
 
 def load_study(path: str | Path) -> Study:
@@ -731,6 +742,7 @@ def load_study(path: str | Path) -> Study:
                           f"{path.name} [error]", "constant")
     fit = _section(doc, "fit", path, False)
     fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
+    _check_vessel(_section(doc, "vessel", path, False), path)
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))
