@@ -35,8 +35,8 @@ class StudyError(KinfitError, ValueError):
     Attributes
     ----------
     file, row, column, run : str or int or None
-        Where the problem is, when known. ``row`` counts data rows from 1 as a spreadsheet
-        shows them below the header line.
+        Where the problem is, when known. ``row`` is the line of the file as an editor or a
+        spreadsheet shows it, the header being row 1.
 
     Examples
     --------
@@ -130,4 +130,14 @@ class RegimeWarning(UserWarning):
     --------
     >>> RegimeWarning("run R03 is film-limited").args[0]
     'run R03 is film-limited'
+    """
+
+
+class PlausibilityWarning(UserWarning):
+    """An input value that is possible but unusual enough to be a typo or a wrong unit.
+
+    Examples
+    --------
+    >>> PlausibilityWarning("particle density 12 g/cm^3 is above 10 g/cm^3").args[0]
+    'particle density 12 g/cm^3 is above 10 g/cm^3'
     """

@@ -6,6 +6,7 @@ records, the one object the rest of kinfit receives.
 from __future__ import annotations
 
 import hashlib
+import io
 import tomllib
 import zipfile
 from collections.abc import Mapping
@@ -19,9 +20,11 @@ from numpy.typing import NDArray
 
 from kinfit.errors import StudyError
 from kinfit.parameters import ParameterTable, parameter_table_from_toml
+from kinfit.plausibility import check_density, check_runs, uninformative_runs
 from kinfit.units import parse_header, parse_quantity, printable, to_si
 
-__all__ = ["Run", "Study", "load_study", "FACTORS", "comparison_sets", "ComparisonSet"]
+__all__ = ["Run", "Study", "load_study", "FACTORS", "comparison_sets", "ComparisonSet",
+           "read_table", "table_line"]
 
 #: runs-table columns: name -> (quantity kind, required, must be strictly positive)
 RUN_COLUMNS: dict[str, tuple[str, bool, bool]] = {
@@ -227,13 +230,14 @@ def comparison_sets(study: Study, factor: str, *, rtol: float = 0.01) -> list[Co
     """Sets of runs that differ only in ``factor``: the classic transport tests.
 
     Runs are grouped by the other factors (equal within ``rtol`` relative); a group that holds
-    at least two distinct values of ``factor`` is a set.
+    at least two distinct values of ``factor`` is a set. Concentration-profile runs with a
+    single point or with points only at t = 0 carry no rate and are kept out.
     """
     if factor not in FACTORS:
         raise StudyError(f"factor '{factor}' is not one of {list(FACTORS)}")
     others = [f for f in FACTORS if f != factor]
     sets: list[ComparisonSet] = []
-    used: set[str] = set()
+    used: set[str] = set(uninformative_runs(study.runs))  # no rate information: kept out
     for r in study.runs:
         if r.id in used:
             continue
@@ -310,19 +314,15 @@ def _table_ref(data: Mapping[str, Any], key: str, base: Path, study: Path) -> tu
     return path, sheet
 
 
-def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
+def read_table(path: Path, sheet: Any = 0) -> pd.DataFrame:
+    """A CSV or XLSX table as text cells, with ``attrs["row_lines"]`` (the file line of each
+    data row, see :func:`table_line`); semicolon-separated CSVs with decimal commas are
+    recognised; unreadable files raise :class:`StudyError` with the cause and the fix."""
     try:
         if path.suffix.lower() in (".xlsx", ".xlsm"):
-            try:
-                frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
-            except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
-                raise StudyError(
-                    f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
-                    f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
-                ) from None
+            frame = _read_workbook(path, sheet)
         elif path.suffix.lower() in (".csv", ".txt"):
-            frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                                comment="#")
+            frame = _read_csv(path)
         else:
             raise StudyError(f"{path.name}: tables must be .csv or .xlsx, got '{path.suffix}'")
     except StudyError:
@@ -336,6 +336,60 @@ def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
     return frame
 
 
+def _read_workbook(path: Path, sheet: Any) -> pd.DataFrame:
+    try:
+        book = pd.ExcelFile(path)
+    except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
+        raise StudyError(
+            f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
+            f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
+        ) from None
+    names = [str(n) for n in book.sheet_names]
+    if isinstance(sheet, str) and sheet not in names:
+        raise StudyError(f"{path.name}: the workbook has no sheet '{printable(sheet)}'; its "
+                         f"sheets are {names}")
+    if isinstance(sheet, int) and not 0 <= sheet < len(names):
+        raise StudyError(f"{path.name}: sheet number {sheet} does not exist (counting from 0); "
+                         f"the workbook's sheets are {names}")
+    frame = pd.read_excel(book, sheet_name=sheet, dtype=object)
+    # the header is the sheet's first row; pandas keeps blank rows below it as empty rows
+    frame.attrs["row_lines"] = list(range(2, len(frame) + 2))
+    frame.attrs["sheets"] = names
+    frame.attrs["sheet"] = names[sheet] if isinstance(sheet, int) else sheet
+    return frame
+
+
+def _read_csv(path: Path) -> pd.DataFrame:
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise StudyError(
+            f"{path.name}, line {line}: the file is not UTF-8 text (byte 0x{raw[exc.start]:02x} "
+            "cannot be read: it was probably saved as Windows-1252 or Latin-1, for example "
+            "for a degree sign or a micro sign); save it again as 'CSV UTF-8', or write the "
+            "units as plain ASCII (degC, um)") from None
+    lines = text.splitlines()
+    kept = [n for n, ln in enumerate(lines, start=1)
+            if ln.strip() and not ln.lstrip().startswith("#")]
+    header = lines[kept[0] - 1] if kept else ""
+    sep = ";" if header.count(";") > 0 and header.count(",") == 0 else ","
+    frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False,
+                        skipinitialspace=True, comment="#", sep=sep)
+    frame.attrs["row_lines"] = kept[1:]
+    if sep == ";":
+        frame.attrs["decimal_comma"] = True
+    return frame
+
+
+def table_line(frame: pd.DataFrame, i: int) -> int:
+    """The file line of data row ``i`` (from 0) as an editor or a spreadsheet shows it, the
+    header being line 1 (comment and blank lines of a CSV counted)."""
+    lines = frame.attrs.get("row_lines")
+    return int(lines[i]) if lines is not None and i < len(lines) else i + 2
+
+
 def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) -> np.ndarray:
     values = frame[col]
     out = np.empty(len(values))
@@ -344,19 +398,22 @@ def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) 
         if cell is None or (isinstance(cell, float) and np.isnan(cell)) or str(cell).strip() == "":
             raise StudyError(
                 "the cell is empty; fill it in or delete the row",
-                file=fname, row=i + 1, column=col, run=run,
+                file=fname, row=table_line(frame, i), column=col, run=run,
             )
+        text = str(cell).strip()
+        if frame.attrs.get("decimal_comma"):
+            text = text.replace(",", ".")  # a semicolon-separated table writes 1,5 for 1.5
         try:
-            out[i] = float(str(cell).strip())
+            out[i] = float(text)
         except ValueError:
             raise StudyError(
                 f"'{printable(cell)}' is not a number; write a plain number (the unit goes in "
                 "the header)",
-                file=fname, row=i + 1, column=col, run=run,
+                file=fname, row=table_line(frame, i), column=col, run=run,
             ) from None
         if not np.isfinite(out[i]):
             raise StudyError(
-                f"'{cell}' is not a finite number", file=fname, row=i + 1, column=col, run=run
+                f"'{cell}' is not a finite number", file=fname, row=table_line(frame, i), column=col, run=run
             )
     return out
 
@@ -369,7 +426,16 @@ def _columns(frame: pd.DataFrame, fname: str, allowed: dict[str, str],
         if not str(header).strip().isprintable():
             raise StudyError(f"column header '{printable(header)}' holds a non-printable "
                              "character; retype the header", file=fname)
-        h = parse_header(str(header), where=fname)
+        try:
+            h = parse_header(str(header), where=fname)
+        except StudyError as exc:
+            sheets = frame.attrs.get("sheets") or []
+            if len(sheets) > 1:
+                raise StudyError(
+                    f"{exc}. This is sheet '{frame.attrs.get('sheet')}' of a workbook with "
+                    f"sheets {sheets}; if the table is on another sheet, name it in the study "
+                    f"file: {{file = \"{fname}\", sheet = \"{sheets[1]}\"}}") from None
+            raise
         if h.name in cols:
             raise StudyError(f"column '{h.name}' appears twice; keep one", file=fname)
         if h.name not in allowed and h.name not in text_cols:
@@ -394,7 +460,7 @@ def _si_column(frame, cols, name, kind, fname, runs):
         i = int(bad[0])
         raise StudyError(
             f"{raw[i]:g} {unit or ''} overflows once converted to SI units; correct the value or "
-            "its unit", file=fname, row=i + 1, column=header,
+            "its unit", file=fname, row=table_line(frame, i), column=header,
             run=None if runs is None else str(runs.iloc[i]),
         )
     return si
@@ -402,7 +468,7 @@ def _si_column(frame, cols, name, kind, fname, runs):
 
 def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[str]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     allowed = {k: v[0] for k, v in RUN_COLUMNS.items()}
     cols = _columns(frame, fname, allowed, RUN_TEXT_COLUMNS)
     for name, (_, required, _) in RUN_COLUMNS.items():
@@ -416,19 +482,20 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
     ids = [str(x).strip() for x in frame[cols["run"][0]].tolist()]
     for i, rid in enumerate(ids):
         if not rid or rid.lower() == "nan":
-            raise StudyError("the run identifier is empty", file=fname, row=i + 1, column="run")
+            raise StudyError("the run identifier is empty", file=fname, row=table_line(frame, i), column="run")
         if not rid.isprintable():
             raise StudyError(f"the run identifier '{printable(rid)}' holds a non-printable "
                              "character; use letters, digits and punctuation", file=fname,
-                             row=i + 1, column="run")
+                             row=table_line(frame, i), column="run")
     seen: dict[str, int] = {}
     for i, rid in enumerate(ids):
         if rid in seen:
             raise StudyError(
-                f"run id '{rid}' appears twice (rows {seen[rid]} and {i + 1}); give each run "
-                "its own id", file=fname, row=i + 1, column="run", run=rid,
+                f"run id '{rid}' appears twice (rows {seen[rid]} and {table_line(frame, i)}); give "
+                "each run "
+                "its own id", file=fname, row=table_line(frame, i), column="run", run=rid,
             )
-        seen[rid] = i + 1
+        seen[rid] = table_line(frame, i)
     id_series = pd.Series(ids)
     values: dict[str, np.ndarray] = {}
     for name, (kind, _, positive) in RUN_COLUMNS.items():
@@ -445,7 +512,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
             raise StudyError(
                 f"{name} must be {need}, got {raw} {cols[name][1] or ''}".rstrip()
                 + "; correct the value or its unit",
-                file=fname, row=i + 1, column=cols[name][0], run=ids[i],
+                file=fname, row=table_line(frame, i), column=cols[name][0], run=ids[i],
             )
         values[name] = v
     runs: dict[str, dict[str, Any]] = {}
@@ -456,6 +523,8 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
                 cell = frame[cols[tc][0]].iloc[i]
                 text = "" if cell is None or str(cell) == "nan" else str(cell).strip()
                 rec[tc] = text or None if tc == "group" else text
+        rec["_line"] = table_line(frame, i)
+        rec["_headers"] = {name: cols[name][0] for name in values}
         runs[rid] = rec
     return runs, ids
 
@@ -463,7 +532,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
 def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                        tolerance: float) -> tuple[str, dict[str, dict[str, np.ndarray]]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     cols = _columns(frame, fname, OBS_COLUMNS, ("run",))
     if "run" not in cols:
         raise StudyError("missing column 'run' (the run identifier)", file=fname)
@@ -490,13 +559,13 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if rid not in runs:
             raise StudyError(
                 f"observations name run '{printable(rid)}', which the runs table lacks; add the "
-                "run or fix the id", file=fname, row=i + 1, column="run", run=printable(rid),
+                "run or fix the id", file=fname, row=table_line(frame, i), column="run", run=printable(rid),
             )
     weights = (_si_column(frame, cols, "weight", "dimensionless", fname, id_series)
                if "weight" in cols else np.ones(len(ids)))
     if np.any(weights <= 0):
         i = int(np.nonzero(weights <= 0)[0][0])
-        raise StudyError("weight must be > 0", file=fname, row=i + 1, column="weight", run=ids[i])
+        raise StudyError("weight must be > 0", file=fname, row=table_line(frame, i), column="weight", run=ids[i])
     rep = (_si_column(frame, cols, "replicate", "dimensionless", fname, id_series)
            if "replicate" in cols else np.zeros(len(ids)))
     out: dict[str, dict[str, np.ndarray]] = {}
@@ -507,7 +576,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if neg.size:
             i = int(neg[0])
             raise StudyError(f"rate must be >= 0, got {frame[cols['rate'][0]].iloc[i]}",
-                             file=fname, row=i + 1, column=cols["rate"][0], run=ids[i])
+                             file=fname, row=table_line(frame, i), column=cols["rate"][0], run=ids[i])
         for rid in dict.fromkeys(ids):
             m = idx == rid
             out[rid] = {"rates": rate[m], "weights": weights[m]}
@@ -523,19 +592,19 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if bad.size:
             i = int(bad[0])
             raise StudyError(f"conversion must lie in [0, 1], got {x[i]:g}",
-                             file=fname, row=i + 1, column=col, run=ids[i])
+                             file=fname, row=table_line(frame, i), column=col, run=ids[i])
         c0 = np.array([runs[r]["initial_concentration"] for r in ids])
         c = c0 * (1.0 - x)
     neg_t = np.nonzero(t < 0)[0]
     if neg_t.size:
         i = int(neg_t[0])
         raise StudyError(f"time must be >= 0, got {frame[cols['time'][0]].iloc[i]}",
-                         file=fname, row=i + 1, column=cols["time"][0], run=ids[i])
+                         file=fname, row=table_line(frame, i), column=cols["time"][0], run=ids[i])
     neg = np.nonzero(c < -tolerance * np.array([runs[r]["initial_concentration"] for r in ids]))[0]
     if neg.size:
         i = int(neg[0])
         raise StudyError(f"concentration must be >= 0, got {frame[col].iloc[i]}",
-                         file=fname, row=i + 1, column=col, run=ids[i])
+                         file=fname, row=table_line(frame, i), column=col, run=ids[i])
     for rid in dict.fromkeys(ids):
         rows = np.nonzero(idx == rid)[0]
         c0 = runs[rid]["initial_concentration"]
@@ -547,7 +616,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                 raise StudyError(
                     f"time does not increase within the run ({frame[cols['time'][0]].iloc[j]} "
                     "after a time at least as late); sort the rows by time or mark replicates "
-                    "in a 'replicate' column", file=fname, row=j + 1, column=cols["time"][0],
+                    "in a 'replicate' column", file=fname, row=table_line(frame, j), column=cols["time"][0],
                     run=rid,
                 )
         high = rows[c[rows] > c0 * (1.0 + tolerance)]
@@ -556,7 +625,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
             raise StudyError(
                 f"concentration {c[j]:.6g} mol/m^3 exceeds the run's initial concentration "
                 f"{c0:.6g} mol/m^3 by more than {tolerance:.0%}; check the value, its unit, or "
-                "the run's initial_concentration", file=fname, row=j + 1, column=col, run=rid,
+                "the run's initial_concentration", file=fname, row=table_line(frame, j), column=col, run=rid,
             )
         out[rid] = {"times": t[rows], "concentrations": np.maximum(c[rows], 0.0),
                     "weights": weights[rows]}
@@ -720,6 +789,7 @@ def load_study(path: str | Path) -> Study:
                          "write for example particle_density = \"1500 kg/m^3\"")
     if catalyst["particle_density"] <= 0:
         raise StudyError(f"{path.name} [catalyst]: particle_density must be > 0")
+    check_density(catalyst["particle_density"], f"{path.name} [catalyst].particle_density")
     kinetics = _quantities(_section(doc, "kinetics", path, True), "kinetics", path)
     if "rate_law" not in kinetics:
         raise StudyError(f"{path.name} [kinetics]: rate_law is missing; write rate_law = \"power\"")
@@ -743,6 +813,9 @@ def load_study(path: str | Path) -> Study:
     fit = _section(doc, "fit", path, False)
     fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
     _check_vessel(_section(doc, "vessel", path, False), path)
+    if "density" in fluid:
+        check_density(fluid["density"], f"{path.name} [fluid].density")
+    check_runs(run_info, runs_path.name, film_model=str(film["model"]).strip().lower())
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))

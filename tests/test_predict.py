@@ -259,7 +259,7 @@ def test_conditions_from_a_table(tmp_path):
     assert conds[1].temperature == pytest.approx(338.15)
     assert conds[1].stirrer_speed == pytest.approx(700 / 60)
     (tmp_path / "bad.csv").write_text("run,temperature [degC]\nA,warm\n")
-    with pytest.raises(StudyError, match=r"bad.csv, row 1, column 'temperature \[degC\]'"):
+    with pytest.raises(StudyError, match=r"bad.csv, row 2, column 'temperature \[degC\]'"):
         conditions_from_argument(str(tmp_path / "bad.csv"), study)
 
 
