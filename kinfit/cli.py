@@ -12,12 +12,22 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-from kinfit.errors import KinfitError, StudyError
+from kinfit.errors import (
+    ConvergenceWarning,
+    IdentifiabilityWarning,
+    KinfitError,
+    PlausibilityWarning,
+    RegimeWarning,
+    StudyError,
+)
 
 __all__ = ["main", "build_parser"]
 
 EXIT_OK, EXIT_FAILED, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report SIGINT
+#: the warnings kinfit itself gives (everything else a command lets through is a leak)
+KINFIT_WARNINGS = (ConvergenceWarning, IdentifiabilityWarning, RegimeWarning,
+                   PlausibilityWarning)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -323,7 +333,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             parser.print_help()
             return EXIT_BAD_INPUT
         with warnings.catch_warnings():
-            warnings.simplefilter("default")
+            # kinfit's own warnings are shown once each; any other filter (a caller's, or
+            # python -W) is left as it is, so a test can turn library warnings into errors
+            for category in KINFIT_WARNINGS:
+                warnings.filterwarnings("default", category=category)
             warnings.showwarning = _show_warning
             return COMMANDS[args.command][1](args)
     except StudyError as exc:
