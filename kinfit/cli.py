@@ -161,11 +161,15 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", type=Path, default=None,
                    help="output folder (default: the --fit folder)")
     p.add_argument("--walkers", type=int, default=None, help="ensemble size")
-    p.add_argument("--steps", type=int, default=20000, help="step cap (default 20000)")
+    from kinfit.bayes import DEFAULT_SEED, MAX_STEPS
+
+    p.add_argument("--steps", type=int, default=MAX_STEPS,
+                   help=f"step cap (default {MAX_STEPS})")
     p.add_argument("--chunk", type=int, default=500, help="steps between checkpoints")
     p.add_argument("--tau-multiple", type=float, default=50.0,
                    help="stop when the chain exceeds this many autocorrelation times")
-    p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
+    p.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                   help=f"seed (same seed, same chain; default {DEFAULT_SEED})")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
     p.add_argument("--moves", choices=("de", "stretch"), default="de",
                    help="proposal: differential-evolution move (default) or stretch move")
@@ -227,7 +231,10 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
 def _run_arguments(p: argparse.ArgumentParser) -> None:
     _add_common(p, out=True)
-    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
+    from kinfit.bayes import DEFAULT_SEED
+
+    p.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                   help=f"seed (default {DEFAULT_SEED})")
     p.add_argument("--multistart", type=int, default=0, metavar="N",
                    help="extra least-squares starts")
     p.add_argument("--steps", type=int, default=10000,

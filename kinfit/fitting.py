@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from kinfit.candidates import candidate_defaults
 from kinfit.criteria import Thresholds
 from kinfit.errors import StudyError
 from kinfit.estimate.least_squares import Estimate, fit_problem
@@ -24,6 +25,7 @@ from kinfit.estimate.uncertainty import (
 from kinfit.identifiability import identifiability_warnings
 from kinfit.model import Model, ModelSpec
 from kinfit.outputs import manifest
+from kinfit.parameters import ParameterTable
 from kinfit.results import FitResult
 from kinfit.simulate import point_table, run_table
 from kinfit.study import Study
@@ -230,8 +232,9 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
 def parse_candidate(text: str, study: Study) -> ModelSpec:
     """A candidate model written ``RATE_LAW[/FILM[/PELLET]]``, e.g. ``power/none/direct``.
 
-    Parameters the candidate needs come from the study's table; parameters it does not use
-    are left out.
+    Parameters the candidate needs come from the study's table, or from
+    :func:`kinfit.candidates.candidate_defaults` when the table lacks them; parameters it does
+    not use are left out. The label is the full ``RATE_LAW/FILM/PELLET``.
     """
     parts = [p.strip() for p in text.split("/")]
     if not 1 <= len(parts) <= 3 or not all(parts):
@@ -240,16 +243,24 @@ def parse_candidate(text: str, study: Study) -> ModelSpec:
     law = parts[0]
     film = parts[1] if len(parts) > 1 else None
     pellet = parts[2] if len(parts) > 2 else None
+    if law == "expression" and study.kinetics.get("rate_law") != "expression":
+        raise StudyError(f"candidate '{text}': an expression rate law needs its formula and "
+                         "its parameters, which a candidate name cannot carry; write it as the "
+                         "study's [kinetics] and compare the present law as the candidate")
     probe = ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
-                                 parameters=study.parameters, label=text, check=False)
+                                 parameters=study.parameters, check=False)
     needed = probe.parameter_names
-    missing = [n for n in needed if n not in study.parameters]
+    defaults = candidate_defaults(law, study)
+    missing = [n for n in needed if n not in study.parameters and n not in defaults]
     if missing:
         raise StudyError(f"candidate '{text}' needs parameter '{missing[0]}', which the study "
-                         f"lacks; add [parameters.{missing[0]}]")
-    keep = [n for n in study.parameters if n in needed or n in ("sigma", "sigma_rel")]
+                         f"lacks and which has no default; add [parameters.{missing[0]}]")
+    table = ParameterTable([study.parameters[n] if n in study.parameters else defaults[n]
+                            for n in needed]
+                           + [study.parameters[n] for n in ("sigma", "sigma_rel")
+                              if n in study.parameters])
     return ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
-                                parameters=study.parameters.subset(keep), label=text)
+                                parameters=table, label=probe.label)
 
 
 def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:

@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.candidates import rate_law_options
 from kinfit.criteria import Criteria, Thresholds, compute_criteria
 from kinfit.errors import ModelError, StudyError
 from kinfit.estimate.problem import ErrorModel, Problem, Space
@@ -104,6 +105,9 @@ class ModelSpec:
         kin = dict(study.kinetics)
         law_name = rate_law or kin["rate_law"]
         options = {k: v for k, v in kin.items() if k not in ("rate_law",)}
+        if law_name != kin["rate_law"]:  # a candidate law takes only the options it knows
+            accepted = rate_law_options(law_name)
+            options = {k: v for k, v in options.items() if k in accepted}
         law = make_rate_law(law_name, **options)
         film_sec = dict(study.film)
         study_film = film_sec.pop("model", "agitation")
@@ -133,7 +137,7 @@ class ModelSpec:
             reactor="differential" if study.kind == "rate" else "batch",
             parameters=table, porosity=study.catalyst.get("porosity"),
             molecular_diffusivity=study.pellet.get("molecular_diffusivity"),
-            fluid=fluid, label=label or f"{law_name}+{film_name}+{mode}",
+            fluid=fluid, label=label or f"{law_name}/{film_name}/{mode}",
         )
         if check:
             spec.validate()

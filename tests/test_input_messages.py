@@ -116,3 +116,22 @@ def test_workbook_sheet_messages(tmp_path):
     (tmp_path / "study.toml").write_text(
         STUDY.replace('runs = "runs.csv"', 'runs = { file = "book.xlsx", sheet = "runs" }'))
     assert load_study(tmp_path / "study.toml").run_ids == ("A1", "A2", "A3")
+
+
+def test_simulate_runs_at_the_study_values_with_every_parameter_fixed(tmp_path):
+    # behaviour: 'vary' matters to fitting only; the simulated profiles are the same whether
+    # the parameters are fixed or free
+    from kinfit.simulate import simulate
+
+    free = load_study(write_study(tmp_path / "free"))
+    fixed_text = STUDY
+    for name in ("k_ref", "activation_energy", "order", "effective_diffusivity", "kc_ref",
+                 "agitation_exponent", "size_exponent"):
+        fixed_text = fixed_text.replace(f"[parameters.{name}]\n",
+                                        f"[parameters.{name}]\nvary = false\n")
+    fixed = load_study(write_study(tmp_path / "fixed", study=fixed_text))
+    assert not fixed.parameters.varying()
+    a, b = simulate(free), simulate(fixed)
+    pd.testing.assert_frame_equal(a.predictions, b.predictions)
+    assert main(["simulate", str(tmp_path / "fixed" / "study.toml"), "--out",
+                 str(tmp_path / "out")]) == 0
