@@ -2,8 +2,8 @@
 
 Particle sizes of a porous catalyst are set by sieving: a fraction is what passes one sieve and
 stays on the next finer one. The apertures are those of ASTM E11 (Standard Specification for
-Woven Wire Test Sieve Cloth and Test Sieves, Table 1), which from 32 um up follow the R40/3 series of ISO 565
-(ISO 3310-1) from 20 um up; the list below runs from 20 um (No. 635) to 4.75 mm (No. 4)
+Woven Wire Test Sieve Cloth and Test Sieves, Table 1), which from 32 um up follow the R40/3
+series of ISO 565 (ISO 3310-1); the list below runs from 20 um (No. 635) to 4.75 mm (No. 4)
 (aperture values from memory of that table). Below 20 um no woven sieve exists; such
 particles are classified by sedimentation or air classification, and kinfit rounds a size
 there down to the R10 preferred numbers (ISO 3: 1, 1.25, 1.6, 2, 2.5, 3.15, 4, 5, 6.3, 8).
