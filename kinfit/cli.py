@@ -141,7 +141,10 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
                             progress=not args.quiet, moves=args.moves)
-    post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    try:
+        post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    except StudyError as exc:
+        raise StudyError(_option_words(str(exc))) from None
     print(post.report())
     print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
     if post.interrupted:
@@ -152,6 +155,18 @@ def _cmd_sample(args: argparse.Namespace) -> int:
         print(f"kinfit: the chain did not converge: {post.verdict}", file=sys.stderr)
         return EXIT_FAILED
     return EXIT_OK
+
+
+#: the sampler's option names as the command line spells them
+_SAMPLER_OPTIONS = {"n_walkers": "--walkers", "max_steps": "--steps", "chunk": "--chunk",
+                    "tau_multiple": "--tau-multiple"}
+
+
+def _option_words(text: str) -> str:
+    """A sampler message with its internal option names replaced by the command's options."""
+    for name, flag in _SAMPLER_OPTIONS.items():
+        text = text.replace(f"the '{name}' option of sample_problem()", f"{flag}")
+    return text
 
 
 def _sample_arguments(p: argparse.ArgumentParser) -> None:

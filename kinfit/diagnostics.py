@@ -323,11 +323,11 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     from kinfit.fitting import FitOptions, fit_model, main_spec
 
     if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
-        raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
-                         f"{alpha!r} instead.")
+        raise StudyError(f"the significance level (--alpha, alpha) must be a number in (0, 1). "
+                         f"Got {alpha!r} instead.")
     if not isinstance(n_draws, int) or n_draws < 1:
-        raise StudyError(f"the 'n_draws' option of diagnose() must be an int >= 1. Got "
-                         f"{n_draws!r} instead.")
+        raise StudyError(f"the number of draws (--n-draws, n_draws) must be a whole number "
+                         f">= 1. Got {n_draws!r} instead.")
     for name, rng in (("speed_range", speed_range), ("diameter_range", diameter_range)):
         if not (len(rng) == 2 and 0.0 < rng[0] < rng[1] and np.isfinite(rng[1])):
             raise StudyError(f"the '{name}' option of diagnose() must be (low, high) with "

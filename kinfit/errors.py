@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import difflib
+from collections.abc import Iterable
+
 __all__ = [
     "KinfitError",
     "StudyError",
@@ -10,6 +13,8 @@ __all__ = [
     "ConvergenceWarning",
     "IdentifiabilityWarning",
     "RegimeWarning",
+    "PlausibilityWarning",
+    "did_you_mean",
 ]
 
 
@@ -141,3 +146,17 @@ class PlausibilityWarning(UserWarning):
     >>> PlausibilityWarning("particle density 12 g/cm^3 is above 10 g/cm^3").args[0]
     'particle density 12 g/cm^3 is above 10 g/cm^3'
     """
+
+
+def did_you_mean(word: str, choices: Iterable[str]) -> str:
+    """A hint naming the nearest valid name (difflib's ratio >= 0.6), or "".
+
+    Examples
+    --------
+    >>> did_you_mean("rate_lw", ["rate_law", "reference_temperature"])
+    " (did you mean 'rate_law'?)"
+    >>> did_you_mean("colour", ["rate_law"])
+    ''
+    """
+    close = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1)
+    return f" (did you mean '{close[0]}'?)" if close else ""

@@ -14,7 +14,7 @@ import numpy as np
 
 from kinfit.candidates import candidate_defaults
 from kinfit.criteria import Thresholds
-from kinfit.errors import StudyError
+from kinfit.errors import StudyError, did_you_mean
 from kinfit.estimate.least_squares import Estimate, fit_problem
 from kinfit.estimate.uncertainty import (
     bootstrap,
@@ -275,7 +275,8 @@ def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
     extra = [n for n in study.parameters if n not in used]
     if extra:
         raise StudyError(
-            f"unknown parameter '{extra[0]}' for the model ({base.label}); the model uses "
+            f"unknown parameter '{extra[0]}'{did_you_mean(extra[0], used)} for the model "
+            f"({base.label}); the model uses "
             f"{sorted(base.parameter_names)} (and error scales sigma, sigma_rel)"
         )
     keep = [n for n in study.parameters if n in base.parameter_names or

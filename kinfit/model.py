@@ -17,7 +17,7 @@ from numpy.typing import NDArray
 
 from kinfit.candidates import rate_law_options
 from kinfit.criteria import Criteria, Thresholds, compute_criteria
-from kinfit.errors import ModelError, StudyError
+from kinfit.errors import ModelError, StudyError, did_you_mean
 from kinfit.estimate.problem import ErrorModel, Problem, Space
 from kinfit.parameters import ParameterTable
 from kinfit.reactors import BatchGrid, batch_profiles, differential_rates
@@ -156,7 +156,8 @@ class ModelSpec:
         extra = sorted(have - needed - set(ERROR_SCALE_NAMES))
         if extra:
             raise StudyError(
-                f"unknown parameter '{extra[0]}' for the model ({self.label}); the model uses "
+                f"unknown parameter '{extra[0]}'{did_you_mean(extra[0], needed)} for the model "
+                f"({self.label}); the model uses "
                 f"{sorted(needed)} (and error scales {list(ERROR_SCALE_NAMES)})"
             )
         if self.pellet == "tortuosity" and (not self.porosity or not (

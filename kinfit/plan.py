@@ -608,8 +608,8 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
     Plan
     """
     if not isinstance(n_runs, int) or n_runs < 1:
-        raise StudyError(f"the 'n_runs' option of plan_runs() must be an int >= 1. Got "
-                         f"{n_runs!r} instead.")
+        raise StudyError(f"the number of runs to plan (--runs, n_runs) must be a whole number "
+                         f">= 1. Got {n_runs!r} instead.")
     fitted = load_fitted(study, fit)
     tests = transport_tests(fitted, thresholds=thresholds)
     rec = tests["recommended"]

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.errors import StudyError
+from kinfit.errors import StudyError, did_you_mean
 from kinfit.parameters import ParameterTable, parameter_table_from_toml
 from kinfit.plausibility import check_density, check_runs, uninformative_runs
 from kinfit.units import parse_header, parse_quantity, printable, to_si
@@ -659,8 +659,9 @@ def _section(doc: Mapping[str, Any], name: str, path: Path, required: bool) -> d
     if allowed is not None:
         unknown = sorted(set(sec) - allowed)
         if unknown:
-            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'; "
-                             f"allowed keys are {sorted(allowed)}")
+            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'"
+                             f"{did_you_mean(unknown[0], allowed)}; allowed keys are "
+                             f"{sorted(allowed)}")
     return dict(sec)
 
 
@@ -740,9 +741,13 @@ def load_study(path: str | Path) -> Study:
     path = Path(path)
     doc = _read_toml(path)
     stray = sorted(set(doc) - SECTIONS)
+    if "claim" in stray:
+        raise StudyError(f"{path} is a claim file ([[claim]] tables), not a study; judge it "
+                         f"with 'kinfit audit {path}'")
     if stray:
         raise StudyError(f"{path}: unknown section or key '{printable(stray[0])}' at the top "
-                         f"level; the study file's sections are {sorted(SECTIONS)}")
+                         f"level{did_you_mean(stray[0], SECTIONS)}; the study file's sections "
+                         f"are {sorted(SECTIONS)}")
     base = path.resolve().parent
     files = {str(path): _sha256(path)}
     data = _section(doc, "data", path, True)
@@ -792,7 +797,10 @@ def load_study(path: str | Path) -> Study:
     check_density(catalyst["particle_density"], f"{path.name} [catalyst].particle_density")
     kinetics = _quantities(_section(doc, "kinetics", path, True), "kinetics", path)
     if "rate_law" not in kinetics:
-        raise StudyError(f"{path.name} [kinetics]: rate_law is missing; write rate_law = \"power\"")
+        typo = [k for k in kinetics if did_you_mean(k, ["rate_law"])]
+        raise StudyError(f"{path.name} [kinetics]: rate_law is missing" + (
+            f"; '{printable(typo[0])}' looks like a misspelling of 'rate_law'" if typo else "")
+            + "; write rate_law = \"power\" (or another rate law)")
     if not isinstance(kinetics["rate_law"], str) or not kinetics["rate_law"].strip():
         raise StudyError(f"{path.name} [kinetics]: rate_law must be the name of a rate law, "
                          f"such as \"power\"; got {printable(repr(kinetics['rate_law']))}")

@@ -7,6 +7,7 @@ Handbook of Chemistry and Physics)."""
 from __future__ import annotations
 
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -135,3 +136,65 @@ def test_simulate_runs_at_the_study_values_with_every_parameter_fixed(tmp_path):
     pd.testing.assert_frame_equal(a.predictions, b.predictions)
     assert main(["simulate", str(tmp_path / "fixed" / "study.toml"), "--out",
                  str(tmp_path / "out")]) == 0
+
+
+def test_typo_keys_suggest_the_nearest_valid_key(tmp_path):
+    text = STUDY.replace("rate_law =", "rate_lw =")
+    with pytest.raises(StudyError, match=r"rate_law is missing; 'rate_lw' looks like a "
+                                         r"misspelling of 'rate_law'"):
+        load_study(write_study(tmp_path / "a", study=text))
+    text = STUDY.replace("[catalyst]\n", "[catalyst]\nporosty = 0.5\n")
+    with pytest.raises(StudyError, match=r"unknown key 'porosty' \(did you mean 'porosity'\?\)"):
+        load_study(write_study(tmp_path / "b", study=text))
+    text = STUDY.replace("[parameters.order]", "[parameters.ordr]")
+    with pytest.raises(StudyError, match=r"unknown parameter 'ordr' \(did you mean 'order'\?\)"):
+        from kinfit.fitting import main_spec
+
+        main_spec(load_study(write_study(tmp_path / "c", study=text)))
+
+
+def test_unit_kind_wording():
+    from kinfit.units import parse_quantity
+
+    with pytest.raises(StudyError, match=r"'kg' is not a molar energy unit"):
+        parse_quantity("60 kg", "energy_per_mol")
+
+
+def test_claim_file_given_to_check_or_run_points_to_audit(tmp_path, capsys):
+    claim = Path(__file__).resolve().parents[1] / "examples" / "claim" / "claim.toml"
+    for command in (["check", str(claim)], ["run", str(claim), "--out", str(tmp_path)]):
+        assert main(command) == 2
+        err = capsys.readouterr().err
+        assert f"is a claim file ([[claim]] tables), not a study; judge it with 'kinfit audit " \
+               f"{claim}'" in err
+
+
+def test_report_refuses_results_of_changed_data(tmp_path, capsys):
+    # bad input (exit 2): the study and the fit folder given together no longer match
+    path = write_study(tmp_path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        # saved whether or not this three-run campaign pins every parameter
+        assert main(["fit", str(path), "--out", str(tmp_path / "fit"), "--no-profile",
+                     "--quiet"]) in (0, 1)
+    obs = tmp_path / "obs.csv"
+    obs.write_text(obs.read_text().replace("A1,20,0.33", "A1,20,0.34"))
+    capsys.readouterr()
+    assert main(["report", str(path), "--fit", str(tmp_path / "fit"), "--out",
+                 str(tmp_path / "rep")]) == 2
+    err = capsys.readouterr().err
+    assert "obs.csv changed since the fit" in err and "--allow-changed-data" in err
+    assert not (tmp_path / "rep" / "report.html").exists()
+    from kinfit.report.command import _refuse_changed_data
+
+    _refuse_changed_data(path, tmp_path / "fit", allow=True)  # the override lets it through
+    obs.write_text(obs.read_text().replace("A1,20,0.34", "A1,20,0.33"))
+    _refuse_changed_data(path, tmp_path / "fit", allow=False)  # unchanged data: no refusal
+
+
+def test_option_messages_name_the_command_line_option(tmp_path):
+    from kinfit.diagnostics import diagnose
+
+    study = load_study(write_study(tmp_path))
+    with pytest.raises(StudyError, match=r"the number of draws \(--n-draws, n_draws\)"):
+        diagnose(study, n_draws=0)

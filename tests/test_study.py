@@ -227,7 +227,7 @@ BAD_CASES = {
     "unknown key in a section": (
         dict(study=_edit(STUDY, 'particle_density = "1500 kg/m^3"',
                          'particle_density = "1500 kg/m^3"\nporosty = 0.5')),
-        r"\[catalyst\] has unknown key 'porosty'; allowed keys are",
+        r"\[catalyst\] has unknown key 'porosty' \(did you mean 'porosity'\?\); allowed keys are",
     ),
     "unknown section": (
         dict(study=STUDY + "\n[pelet]\ndiffusivity = \"direct\"\n"),
