@@ -198,3 +198,25 @@ def test_option_messages_name_the_command_line_option(tmp_path):
     study = load_study(write_study(tmp_path))
     with pytest.raises(StudyError, match=r"the number of draws \(--n-draws, n_draws\)"):
         diagnose(study, n_draws=0)
+
+
+def test_readme_reference_names_every_section_key_and_parameter():
+    # behaviour: the user reference in the README covers every key the loader accepts
+    from kinfit.candidates import rate_law_options
+    from kinfit.kinetics import RATE_LAWS
+    from kinfit.parameters import _KEYS, PARAMETER_KINDS
+    from kinfit.study import SECTION_KEYS
+    from kinfit.transport.properties import SOLVENTS
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    ref = readme[readme.index("### Sections and keys"):readme.index("## Cautions")]
+    for section, keys in SECTION_KEYS.items():
+        assert f"`[{section}]`" in ref, section
+        for key in keys:
+            assert f"`{key}`" in ref, (section, key)
+    for name in [*PARAMETER_KINDS, *_KEYS, *SOLVENTS, *RATE_LAWS]:
+        assert f"`{name}`" in ref, name
+    for law in RATE_LAWS:
+        for option in rate_law_options(law):
+            assert f"`{option}`" in ref, (law, option)
+    assert "Python 3.11 or newer" in readme
