@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
@@ -133,6 +134,24 @@ class Diagnosis:
             "alpha": self.alpha,
             "units": _UNITS,
         })
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per run: the criteria, the resistance shares, the regime and whether the run
+        counts as intrinsic (SI; a rate in mol/(kg s), kc in m/s)."""
+        rows = []
+        for rid, r in self.runs.items():
+            shares = r.get("shares") or {}
+            rows.append({
+                "run": rid, "regime": r.get("regime"),
+                "thiele_modulus": r.get("thiele_modulus"),
+                "effectiveness_factor": r.get("effectiveness_factor"),
+                "weisz_prater": r.get("weisz_prater"), "mears": r.get("mears"),
+                "carberry": r.get("carberry"),
+                **{f"share_{k}": v for k, v in shares.items()},
+                "observed_rate [mol/(kg*s)]": r.get("observed_rate"),
+                "kc [m/s]": r.get("kc"), "intrinsic": rid in self.intrinsic_runs,
+            })
+        return pd.DataFrame(rows)
 
     def save(self, folder: str | Path) -> Path:
         """Write ``folder/diagnosis.json`` atomically; returns its path."""

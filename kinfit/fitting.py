@@ -8,8 +8,10 @@ from __future__ import annotations
 from collections.abc import Sequence
 from concurrent.futures import Executor
 from dataclasses import dataclass, field
+from dataclasses import replace as dc_replace
 from typing import Any
 
+import lmfit
 import numpy as np
 
 from kinfit.candidates import candidate_defaults
@@ -24,6 +26,7 @@ from kinfit.estimate.uncertainty import (
 )
 from kinfit.identifiability import identifiability_warnings
 from kinfit.model import Model, ModelSpec
+from kinfit.lmfit_bridge import table_from_lmfit
 from kinfit.outputs import manifest
 from kinfit.parameters import ParameterTable
 from kinfit.results import FitResult
@@ -285,8 +288,8 @@ def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
 
 
 def fit(study: Study, options: FitOptions | None = None, *,
-        candidates: Sequence[str] | None = None, argv: Sequence[str] | None = None
-        ) -> FitResult:
+        candidates: Sequence[str] | None = None, argv: Sequence[str] | None = None,
+        parameters: lmfit.Parameters | None = None) -> FitResult:
     """Fit the study's model (and candidate models, compared by AICc and BIC).
 
     Parameters
@@ -296,12 +299,20 @@ def fit(study: Study, options: FitOptions | None = None, *,
     candidates : sequence of str, optional
         Further models written ``RATE_LAW[/FILM[/PELLET]]``; the study's own model is always
         the first row of the comparison.
+    argv : sequence of str, optional
+        Command line recorded in the manifest.
+    parameters : lmfit.Parameters, optional
+        Starting values, bounds and vary flags (SI) replacing the study's, matched by name
+        (for example ``previous.to_parameters()``); see
+        :func:`kinfit.lmfit_bridge.table_from_lmfit`.
 
     Returns
     -------
     FitResult
         The study's model, with ``comparison`` filled when candidates were given.
     """
+    if parameters is not None:
+        study = dc_replace(study, parameters=table_from_lmfit(study.parameters, parameters))
     candidates = list(candidates or study.fit.get("compare", []) or [])
     spec = main_spec(study, candidates)
     result = fit_model(spec, study, options, argv=argv)

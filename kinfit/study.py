@@ -101,6 +101,18 @@ class Run:
     volume: float | None = None
     note: str = ""
 
+    def __repr__(self) -> str:
+        """The run in the lab's units, e.g. ``Run('R01', T=40 degC, N=300 rpm, dp=10 um, w=1
+        g/L, C0=0.8 mol/L, 15 points)``; the fields themselves are SI."""
+        parts = [f"T={self.temperature - 273.15:.4g} degC",
+                 f"N={self.stirrer_speed * 60:.4g} rpm",
+                 f"dp={self.particle_diameter * 1e6:.4g} um",
+                 f"w={self.catalyst_loading:.4g} g/L",
+                 f"C0={self.initial_concentration / 1000:.4g} mol/L"]
+        if self.group:
+            parts.append(f"group={self.group!r}")
+        return f"Run({self.id!r}, {', '.join(parts)}, {self.n_obs} points)"
+
     @property
     def n_obs(self) -> int:
         """Number of observations of the run."""
