@@ -25,8 +25,8 @@ from kinfit.estimate.uncertainty import (
     profile_intervals,
 )
 from kinfit.identifiability import identifiability_warnings
-from kinfit.model import Model, ModelSpec
 from kinfit.lmfit_bridge import table_from_lmfit
+from kinfit.model import Model, ModelSpec
 from kinfit.outputs import manifest
 from kinfit.parameters import ParameterTable
 from kinfit.results import FitResult
