@@ -45,7 +45,13 @@ from kinfit.criteria import Thresholds
 from kinfit.errors import StudyError
 from kinfit.model import Model
 from kinfit.results import FitResult
-from kinfit.sieves import SPEED_STEP, practical_speed, sieve_fraction, speed_grid
+from kinfit.sieves import (
+    ASTM_E11_APERTURES,
+    SPEED_STEP,
+    practical_speed,
+    sieve_fraction,
+    speed_grid,
+)
 from kinfit.study import FACTORS, Study
 
 __all__ = ["SPEED_RANGE", "DIAMETER_RANGE", "NOISE_Z", "CandidateGrid", "Plan",
@@ -177,10 +183,14 @@ def transport_tests(fitted: FittedModel, *, thresholds: Thresholds | None = None
         n_ca_rec = _bisect_log(lambda N: carberry_met(N, np.full(n, rec_dp)), *SPEED_RANGE, n,
                                met_above=True)
     above, below = _difference_speeds(fitted, conds)
+    size_up, size_down = _difference_diameters(fitted, conds)
     limits = crit.thresholds
     runs = {}
     for i, c in enumerate(conds):
         runs[c.id] = {
+            "size_test": _size_statement(c, size_up[i], size_down[i]),
+            "size_difference_above": _num(size_up[i]),
+            "size_difference_below": _num(size_down[i]),
             "agitation_test": _agitation_statement(c, above[i], below[i],
                                                    _campaign_speed(fitted)),
             "carberry": float(crit.carberry[i]), "carberry_limit": limits["carberry"],
@@ -202,6 +212,29 @@ def transport_tests(fitted: FittedModel, *, thresholds: Thresholds | None = None
                           "or smaller keep every run below the Weisz-Prater limit (Weisz & "
                           f"Prater 1954): use the {fraction}")
     return {"runs": runs, "recommended": rec}
+
+
+def _fraction_label(d: float) -> str:
+    """The sieve fraction whose mean aperture is ``d``."""
+    a = ASTM_E11_APERTURES
+    for lo, hi in zip(a[:-1], a[1:], strict=True):
+        if abs(0.5 * (lo + hi) - d) <= 1e-9 * d:
+            return f"{lo * 1e6:.4g}-{hi * 1e6:.4g} um fraction"
+    return display("particle_diameter", d, symbol=False)
+
+
+def _size_statement(c: Condition, above: float, below: float) -> str:
+    """Whether a particle-size test at this run's conditions can show anything."""
+    own = display("particle_diameter", c.particle_diameter, symbol=False)
+    moves = [_fraction_label(v) for v in (below, above) if np.isfinite(v)]
+    if moves:
+        return (f"conclusive: the {' or the '.join(moves)} instead of {own} changes the "
+                "profile beyond the noise; at a fixed speed this covers film and pores "
+                "together")
+    a = ASTM_E11_APERTURES
+    return (f"not conclusive: no sieve fraction from {a[0] * 1e6:.0f} um to {a[-1] * 1e3:g} mm "
+            f"changes the profile beyond the noise at {own}, so equal profiles there would "
+            "prove nothing")
 
 
 def _agitation_statement(c: Condition, above: float, below: float, lowest: float) -> str:
@@ -291,13 +324,28 @@ def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple
     """Per run, the nearest speeds above and below its own (on the 50 rpm grid, from the
     campaign's lowest speed to the top of :data:`SPEED_RANGE`) at which its predicted profile
     differs from the one at its own speed by more than z sqrt(2) sigma."""
-    study = fitted.study
     # practical speeds, not below the campaign's lowest (slower: the agitation law is
     # extrapolated and the catalyst may settle)
     grid = np.array(speed_grid(max(_campaign_speed(fitted), SPEED_STEP), SPEED_RANGE[1]))
+    return _differences(fitted, conds, "stirrer_speed", grid)
+
+
+def _difference_diameters(fitted: FittedModel, conds: Sequence[Condition]
+                          ) -> tuple[Array, Array]:
+    """Per run, the nearest sieve fractions (mean apertures of adjacent ASTM E11 sieves) above
+    and below its own size at which its predicted profile differs beyond the noise."""
+    a = np.array(ASTM_E11_APERTURES)
+    return _differences(fitted, conds, "particle_diameter", 0.5 * (a[:-1] + a[1:]))
+
+
+def _differences(fitted: FittedModel, conds: Sequence[Condition], factor: str, grid: Array
+                 ) -> tuple[Array, Array]:
+    """Nearest values of ``factor`` on ``grid``, above and below each run's own, at which the
+    run's predicted profile differs from its own by more than z sqrt(2) sigma (NaN: none)."""
+    study = fitted.study
     n = len(conds)
-    copies = [replace(c, id=f"{c.id}@{j}", stirrer_speed=float(N))
-              for c in conds for j, N in enumerate(grid)]
+    copies = [replace(c, id=f"{c.id}@{j}", **{factor: float(v)})  # type: ignore[arg-type]
+              for c in conds for j, v in enumerate(grid)]
     own = [replace(c, id=f"{c.id}@own") for c in conds]
     times = None
     if study.kind == "profile":
@@ -305,7 +353,8 @@ def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple
         times = [t[i] for i in range(n) for _ in grid] + t
     model = fitted.model_at(copies + own, times=times)
     theta = fitted.theta_for(model, fitted.theta)
-    f = model.predict(theta)[0]
+    with np.errstate(all="ignore"):
+        f = model.predict(theta)[0]
     above, below = np.full(n, np.nan), np.full(n, np.nan)
     counts = [c.size for c in (times or [np.zeros(1)] * (len(copies) + n))]
     starts = np.concatenate([[0], np.cumsum(counts)])
@@ -318,8 +367,9 @@ def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple
         for j in range(g):
             k = i * g + j
             differs[j] = np.any(np.abs(f[starts[k]:starts[k + 1]] - ref) > noise)
-        up = np.flatnonzero(differs & (grid > c.stirrer_speed))
-        down = np.flatnonzero(differs & (grid < c.stirrer_speed))
+        own_value = getattr(c, factor)
+        up = np.flatnonzero(differs & (grid > own_value * (1 + 1e-9)))
+        down = np.flatnonzero(differs & (grid < own_value * (1 - 1e-9)))
         if up.size:
             above[i] = grid[up[0]]
         if down.size:
@@ -522,7 +572,7 @@ class Plan:
         lines += [f"- {t}" for t in self.tests["recommended"]["text"]]
         lines += ["", "| run | Carberry (limit) | N for Carberry | Weisz-Prater (limit) | "
                   "dp for Weisz-Prater | N differing beyond noise (below / above) | "
-                  "agitation test |", "|---|---|---|---|---|---|---|"]
+                  "agitation test | size test |", "|---|---|---|---|---|---|---|---|"]
         for rid, r in self.tests["runs"].items():
             def sp(v: float | None) -> str:
                 return "none" if v is None else display("stirrer_speed", v, symbol=False)
@@ -533,9 +583,9 @@ class Plan:
                 f"({r['weisz_prater_limit']:.3g}) | "
                 f"{'none' if dpw is None else display('particle_diameter', dpw, symbol=False)}"
                 f" | {sp(r['speed_difference_below'])} / {sp(r['speed_difference_above'])} | "
-                f"{r['agitation_test'].split(':')[0]} |")
-        lines += [""] + [f"- {rid}: agitation test {r['agitation_test']}"
-                         for rid, r in self.tests["runs"].items()]
+                f"{r['agitation_test'].split(':')[0]} | {r['size_test'].split(':')[0]} |")
+        lines += [""] + [f"- {rid}: agitation test {r['agitation_test']}; size test "
+                         f"{r['size_test']}" for rid, r in self.tests["runs"].items()]
         rnd = d["random"]
         lines += ["", f"## D-optimal choice of {len(self.chosen)} run(s) from "
                   f"{d['candidates']} candidates", "",

@@ -265,3 +265,8 @@ def test_demo_plan_uses_practical_conditions(tmp_path):
     # a run stirred fast and with small, kinetic-regime particles gains nothing from a speed
     # test: not every run is called conclusive
     assert any(s.startswith("not conclusive") for s in statements)
+    sizes = [r["size_test"] for r in plan.tests["runs"].values()]
+    assert all(s.startswith(("conclusive", "not conclusive")) for s in sizes)
+    # a size test compares standard sieve fractions, nearest first
+    r03 = plan.tests["runs"]["R03"]
+    assert "212-250 um fraction" in r03["size_test"] or "not conclusive" in r03["size_test"]
