@@ -29,9 +29,15 @@ from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import Study
 
-__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries"]
+__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries", "DEFAULT_SEED", "MAX_STEPS"]
 
 _DERIVED = ("effectiveness_factor", "thiele_modulus", "weisz_prater", "carberry", "mears")
+
+
+#: default seed of sampling (and of ``kinfit run``): same study, same chain
+DEFAULT_SEED = 20261201
+#: default step cap of sampling, as the README states
+MAX_STEPS = 10_000
 
 
 @dataclass(frozen=True)
@@ -49,6 +55,8 @@ class SampleOptions:
     tau_multiple : float
         Stop when the chain is longer than this multiple of the autocorrelation time.
     seed : int or None
+        Seed of the walkers' start and moves (default :data:`DEFAULT_SEED`, so that a
+        standalone ``kinfit sample`` is reproducible like ``kinfit run``; None draws one).
     resume : bool
         Continue from the checkpoint in the output folder.
     progress : bool
@@ -61,10 +69,10 @@ class SampleOptions:
     """
 
     walkers: int | None = None
-    max_steps: int = 20000
+    max_steps: int = MAX_STEPS
     chunk: int = 500
     tau_multiple: float = 50.0
-    seed: int | None = None
+    seed: int | None = DEFAULT_SEED
     resume: bool = False
     progress: bool = True
     n_predictive: int = 200

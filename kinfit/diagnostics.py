@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
@@ -132,6 +133,24 @@ class Diagnosis:
             "alpha": self.alpha,
             "units": _UNITS,
         })
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per run: the criteria, the resistance shares, the regime and whether the run
+        counts as intrinsic (SI; a rate in mol/(kg s), kc in m/s)."""
+        rows = []
+        for rid, r in self.runs.items():
+            shares = r.get("shares") or {}
+            rows.append({
+                "run": rid, "regime": r.get("regime"),
+                "thiele_modulus": r.get("thiele_modulus"),
+                "effectiveness_factor": r.get("effectiveness_factor"),
+                "weisz_prater": r.get("weisz_prater"), "mears": r.get("mears"),
+                "carberry": r.get("carberry"),
+                **{f"share_{k}": v for k, v in shares.items()},
+                "observed_rate [mol/(kg*s)]": r.get("observed_rate"),
+                "kc [m/s]": r.get("kc"), "intrinsic": rid in self.intrinsic_runs,
+            })
+        return pd.DataFrame(rows)
 
     def save(self, folder: str | Path) -> Path:
         """Write ``folder/diagnosis.json`` atomically; returns its path."""
@@ -326,11 +345,11 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     from kinfit.fitting import FitOptions, fit_model, main_spec
 
     if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
-        raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
-                         f"{alpha!r} instead.")
+        raise StudyError(f"the significance level (--alpha, alpha) must be a number in (0, 1). "
+                         f"Got {alpha!r} instead.")
     if not isinstance(n_draws, int) or n_draws < 1:
-        raise StudyError(f"the 'n_draws' option of diagnose() must be an int >= 1. Got "
-                         f"{n_draws!r} instead.")
+        raise StudyError(f"the number of draws (--n-draws, n_draws) must be a whole number "
+                         f">= 1. Got {n_draws!r} instead.")
     for name, rng in (("speed_range", speed_range), ("diameter_range", diameter_range)):
         if not (len(rng) == 2 and 0.0 < rng[0] < rng[1] and np.isfinite(rng[1])):
             raise StudyError(f"the '{name}' option of diagnose() must be (low, high) with "

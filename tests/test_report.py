@@ -594,6 +594,10 @@ def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     add_report_arguments(parser)
     args = parser.parse_args([str(copy / "study.toml"), "--out", str(out)])
     assert args.fit is None
+    with pytest.raises(StudyError, match="obs.csv changed since the fit"):
+        run_report_command(args)  # refused unless asked for
+    args = parser.parse_args([str(copy / "study.toml"), "--out", str(out),
+                              "--allow-changed-data"])
     assert run_report_command(args) == 0
     captured = capsys.readouterr()
     assert "wrote" in captured.out and "differs from the files" in captured.err

@@ -207,3 +207,22 @@ def test_run_interrupted_while_sampling_still_writes_the_report(tmp_path, monkey
     assert "--resume" in err and "kinfit report" in err
     assert (out / "report.html").is_file() and (out / "posterior_checkpoint.npz").is_file()
     assert json.loads((out / "posterior.json").read_text())["convergence"]["interrupted"]
+
+
+def test_default_seed_makes_a_standalone_sample_reproducible(fitted, tmp_path):
+    # no --seed: the documented default seed, so two standalone samples agree draw for draw;
+    # the default step cap is the README's 10 000
+    from kinfit.bayes import DEFAULT_SEED, MAX_STEPS
+    from kinfit.cli import build_parser
+
+    args = build_parser().parse_args(["sample", str(DEMO), "--fit", str(fitted)])
+    assert args.steps == MAX_STEPS == 10_000 and args.seed == DEFAULT_SEED
+    readme = (DEMO.parents[2] / "README.md").read_text()
+    assert "10 000-step cap" in readme
+    for name in ("a", "b"):
+        assert _sample(fitted, tmp_path / name, "--steps", "60", "--walkers", "16") == 0
+    a = pd.read_csv(tmp_path / "a" / "posterior_draws.csv")
+    b = pd.read_csv(tmp_path / "b" / "posterior_draws.csv")
+    pd.testing.assert_frame_equal(a, b)
+    post = json.loads((tmp_path / "a" / "posterior.json").read_text())
+    assert post["sampler"]["seed"] == DEFAULT_SEED
