@@ -19,7 +19,8 @@ from kinfit.analysis.transport_limits import log_boundary
 from kinfit.estimate.compare import akaike_weights, f_test, likelihood_ratio_test
 from kinfit.fitting.fit import comparison_rows
 from kinfit.fitting.results import FitResult
-from kinfit.physics.criteria import compute_criteria, resistance_shares
+from kinfit.physics.criteria import compute_criteria
+from kinfit.physics.resistances import resistance_shares
 from kinfit.physics.geometry import GEOMETRIES, characteristic_length, external_area, shape_index
 from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
 from kinfit.physics.pellet import _lh_table, _power_table
@@ -57,7 +58,9 @@ def test_resistance_shares_one_implementation():
     # first order behind a film with eta = 1: shares of 1/(kc a_m) and 1/k in the sum
     # (resistances in series; Satterfield 1970)
     k1, conductance = 3e-4, 2e-4
-    film, pore, react = resistance_shares(k1 * 100.0, 100.0, 1.0, conductance)
+    sh = resistance_shares(intrinsic_rate=k1 * 100.0, surface_concentration=100.0,
+                           effectiveness=1.0, conductance=conductance)
+    film, pore, react = sh.film, sh.pore, sh.reaction
     total = 1 / conductance + 1 / k1
     assert float(film) == pytest.approx((1 / conductance) / total, rel=1e-14)
     assert float(react) == pytest.approx((1 / k1) / total, rel=1e-14)
@@ -71,18 +74,20 @@ def test_resistance_shares_one_implementation():
                             effective_diffusivity=np.array([1e-10]), geometry="sphere",
                             order=1.0)
     a_m = external_area("sphere", 1e-4, 1500.0)
-    expected = resistance_shares(0.02, 150.0, 0.5, 1e-4 * a_m)
+    ex = resistance_shares(intrinsic_rate=0.02, surface_concentration=150.0, effectiveness=0.5,
+                           conductance=1e-4 * a_m)
     np.testing.assert_allclose([crit.film_share[0], crit.pore_share[0], crit.reaction_share[0]],
-                               [float(x) for x in expected], rtol=1e-14)
+                               [float(ex.film), float(ex.pore), float(ex.reaction)], rtol=1e-14)
     # the one-measurement calculator reports the same shares for its own Cs and eta
     res = criteria_from_measurement(rate=0.01, particle_diameter=1e-4, particle_density=1500.0,
                                     bulk_concentration=200.0, film_coefficient=1e-4,
                                     effective_diffusivity=1e-10, order=1.0, geometry="sphere")
     eta = res["effectiveness_factor"]
-    expected = resistance_shares(0.01 / eta, res["surface_concentration"], eta,
-                                 1e-4 * res["external_area"])
+    ex = resistance_shares(intrinsic_rate=0.01 / eta,
+                           surface_concentration=res["surface_concentration"],
+                           effectiveness=eta, conductance=1e-4 * res["external_area"])
     assert [res["shares"][k] for k in ("film", "pore", "reaction")] == pytest.approx(
-        [float(x) for x in expected], rel=1e-14)
+        [float(ex.film), float(ex.pore), float(ex.reaction)], rel=1e-14)
 
 
 def test_transport_limit_search_one_implementation():

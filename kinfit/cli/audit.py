@@ -11,8 +11,10 @@ from kinfit.analysis.audit.audit import audit_claims
 from kinfit.analysis.audit.limits import (
     VERDICTS,
 )
+from kinfit.analysis.audit.markdown import refit_inadequacy
 from kinfit.core.files import (
     prepare_out_dir,
+    recorded_command,
 )
 
 __all__ = ["add_arguments", "run"]
@@ -31,11 +33,14 @@ def run(args: argparse.Namespace) -> int:
     """Run ``kinfit audit``; returns the exit code."""
 
     result = audit_claims(args.claim)
-    result = replace(result, manifest={**result.manifest, "command": list(sys.argv)})
+    result = replace(result, manifest={**result.manifest, "command": recorded_command(sys.argv)})
     out = prepare_out_dir(args.out)
     result.save(out)
     for c in result.claims:
         print(f"{c.name}: {c.verdict}")
+        caution = refit_inadequacy(c.reproduction)
+        if caution:
+            print(f"  caution: {caution}")
         for e in c.evidence:
             print(f"  - {e}")
         for m in c.missing:

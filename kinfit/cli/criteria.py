@@ -54,9 +54,14 @@ def format_criteria(res: dict[str, Any]) -> str:
     lines.append(f"  {'Thiele modulus Phi (generalised, L = Vp/Sp)':<42}"
                  f"{_num(res['thiele_modulus']):>11}")
     s = res["shares"]
-    pore = "n/a" if s["pore"] is None else f"{100 * s['pore']:.0f} %"
-    lines.append(f"  resistance shares: film {100 * s['film']:.0f} %, pore {pore}, reaction "
-                 f"{100 * s['reaction']:.0f} % -> regime '{res['regime']}'")
+    if res["regime"] is None:
+        lines.append("  resistance shares: not assessed (" + ", ".join(
+            f"{k} resistance not assessed" for k in ("film", "pore")
+            if res["resistances"][k] is None) + "); regime not assessed")
+    else:
+        lines.append(f"  resistance shares: film {100 * s['film']:.1f} %, pore "
+                     f"{100 * s['pore']:.1f} %, reaction {100 * s['reaction']:.1f} % -> regime "
+                     f"'{res['regime']}' (controlling: {res['controlling']})")
     lines.append("")
     lines.append(f"  verdict: {res['verdict']}")
     for n in res["notes"]:

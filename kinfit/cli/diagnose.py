@@ -8,8 +8,8 @@ from pathlib import Path
 import numpy as np
 
 from kinfit.analysis.diagnosis.diagnosis import DRAWS_FILE, diagnose, read_draws
-from kinfit.analysis.transport_limits import SPEED_RANGE
 from kinfit.analysis.diagnosis.per_run import N_DRAWS
+from kinfit.analysis.transport_limits import SPEED_RANGE
 from kinfit.core.files import prepare_out_dir
 from kinfit.core.units import parse_quantity
 from kinfit.errors import StudyError
@@ -41,10 +41,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="significance level of the model-free tests (default 0.05)")
     parser.add_argument("--carberry", type=float, default=0.05, metavar="LIMIT",
                         help="Carberry limit times |n| (default 0.05: Ca < 0.05/|n|)")
-    parser.add_argument("--weisz-prater", type=float, default=0.3, metavar="LIMIT",
-                        help="Weisz-Prater limit with R = dp/2 (default 0.3)")
+    parser.add_argument("--weisz-prater", type=float, default=None, metavar="LIMIT",
+                        help="Weisz-Prater limit with R = dp/2 for every shape (default: the "
+                             "value at which the first-order eta of the geometry is 0.95, "
+                             "0.767 for a sphere)")
     parser.add_argument("--mears", type=float, default=0.15, metavar="LIMIT",
-                        help="Mears limit (default 0.15)")
+                        help="Mears limit for a sphere, R = dp/2 (default 0.15; other shapes "
+                             "scale by (R/L)/3 for the same rate error)")
     parser.add_argument("--min-effectiveness", type=float, default=0.95, metavar="ETA",
                         help="smallest effectiveness factor counted as kinetic (default 0.95)")
     parser.add_argument("--max-speed", default="3000 rpm", metavar="SPEED",
@@ -67,7 +70,7 @@ def run(args: argparse.Namespace) -> int:
     Parameters
     ----------
     args : argparse.Namespace
-        Parsed by a parser set up with :func:`add_arguments`.
+        Parsed by a parser set up with :func:`add_diagnose_arguments`.
 
     Returns
     -------
@@ -85,7 +88,8 @@ def run(args: argparse.Namespace) -> int:
     study = load_study(args.study)
     thresholds = Thresholds(
         carberry=_positive("carberry", args.carberry),
-        weisz_prater_radius=_positive("weisz-prater", args.weisz_prater),
+        weisz_prater_radius=(None if args.weisz_prater is None
+                             else _positive("weisz-prater", args.weisz_prater)),
         mears=_positive("mears", args.mears),
         effectiveness=_positive("min-effectiveness", args.min_effectiveness),
     )

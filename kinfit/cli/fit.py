@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
-from kinfit.cli.common import EXIT_FAILED, EXIT_INTERRUPTED, EXIT_OK, add_common
+from kinfit.cli.common import (
+    EXIT_FAILED,
+    EXIT_INTERRUPTED,
+    add_common,
+    adequacy_exit,
+    print_adequacy,
+)
 from kinfit.cli.options import add_parallel_arguments, executor_from_args
 from kinfit.core.files import prepare_out_dir
 from kinfit.fitting.fit import FitOptions, fit
@@ -33,8 +39,9 @@ def run(args: argparse.Namespace) -> int:
                      candidates=args.compare, argv=sys.argv)
     result.save(out)
     print(result.report())
+    print_adequacy(result.fit.get("adequacy"))
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
-    boot = result.bootstrap or {}
+    boot = result.extras.get("bootstrap") or {}
     if boot.get("interrupted"):
         print(f"kinfit: bootstrap interrupted after {boot['n_done']} of {boot['n']} replicates; "
               "the results are saved with the intervals of the finished ones", file=sys.stderr)
@@ -42,7 +49,7 @@ def run(args: argparse.Namespace) -> int:
     if not result.converged:
         print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
         return EXIT_FAILED
-    return EXIT_OK
+    return adequacy_exit(args, result.fit.get("adequacy"))
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
@@ -63,3 +70,5 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--max-nfev", type=int, default=None, metavar="N",
                    help="cap on function evaluations of the optimiser")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")

@@ -28,9 +28,20 @@ from kinfit.cli import (
 )
 from kinfit.cli.common import EXIT_BAD_INPUT, EXIT_FAILED, EXIT_INTERRUPTED
 from kinfit.core.version import __version__
-from kinfit.errors import KinfitError, StudyError
+from kinfit.errors import (
+    ConvergenceWarning,
+    IdentifiabilityWarning,
+    KinfitError,
+    PlausibilityWarning,
+    RegimeWarning,
+    StudyError,
+)
 
-__all__ = ['main', 'build_parser']
+__all__ = ["main", "build_parser", "KINFIT_WARNINGS"]
+
+#: the warnings kinfit itself gives (everything else a command lets through is a leak)
+KINFIT_WARNINGS = (ConvergenceWarning, IdentifiabilityWarning, RegimeWarning,
+                   PlausibilityWarning)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -46,7 +57,7 @@ COMMANDS: dict[str, tuple[str, ModuleType]] = {
     "simulate": ("predict every run at the study's parameter values", simulate),
     "fit": ("fit all runs jointly: estimates, intervals, identifiability, regimes", fit),
     "sample": ("sample the posterior from the fit's optimum (emcee)", sample),
-    "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
+    "diagnose": ("where transport limits the rate: model-free tests and per-run criteria",
                  diagnose),
     "criteria": ("transport criteria for one measurement, no fitting", criteria),
     "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)", report),
@@ -84,7 +95,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             parser.print_help()
             return EXIT_BAD_INPUT
         with warnings.catch_warnings():
-            warnings.simplefilter("default")
+            # kinfit's own warnings are shown once each; any other filter (a caller's, or
+            # python -W) is left as it is, so a test can turn library warnings into errors
+            for category in KINFIT_WARNINGS:
+                warnings.filterwarnings("default", category=category)
             warnings.showwarning = _show_warning
             return int(COMMANDS[args.command][1].run(args))
     except StudyError as exc:

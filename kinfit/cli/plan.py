@@ -9,9 +9,11 @@ from pathlib import Path
 
 import numpy as np
 
-from kinfit.analysis.plan import _levels, default_grid, plan_runs, transport_tests
+from kinfit.analysis.design import _levels, default_grid
+from kinfit.analysis.plan import plan_runs, transport_tests
 from kinfit.core.files import (
     prepare_out_dir,
+    recorded_command,
 )
 from kinfit.core.units import to_si
 from kinfit.errors import StudyError
@@ -84,7 +86,7 @@ def run(args: argparse.Namespace) -> int:
         base = default_grid(study, speed=rec["stirrer_speed"], diameter=rec["particle_diameter"])
         grid = replace(base, **{k: _levels(v) for k, v in given.items() if v is not None})
     plan = plan_runs(study, fit, n_runs=args.runs, grid=grid, seed=args.seed)
-    plan = replace(plan, manifest={**plan.manifest, "command": list(sys.argv)})
+    plan = replace(plan, manifest={**plan.manifest, "command": recorded_command(sys.argv)})
     out = Path(args.out) if args.out is not None else Path(args.fit) / "plan"
     prepare_out_dir(out)
     plan.save(out)

@@ -10,6 +10,7 @@ from pathlib import Path
 from kinfit.analysis.predict import ExtrapolationRefused, predict_conditions
 from kinfit.core.files import (
     prepare_out_dir,
+    recorded_command,
 )
 from kinfit.errors import StudyError
 from kinfit.fitting.results import FitResult
@@ -41,9 +42,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--draws", type=int, default=400,
                         help="parameter draws for the bands (default 400)")
     parser.add_argument("--seed", type=int, default=None, help="seed of the draws")
-    parser.add_argument("--allow-extrapolation", action="store_true",
-                        help="predict even when a film coefficient fitted only to film-limited "
-                             "data would be carried to another stirrer speed or particle size")
+    parser.add_argument("--extrapolate", action="store_true",
+                        help="predict even outside the campaign's ranges or where a film "
+                             "coefficient fitted only to film-limited data would be carried "
+                             "elsewhere; every output is then marked as extrapolated")
     parser.add_argument("--out", type=Path, default=None,
                         help="output folder (default: FIT/predict)")
 
@@ -64,12 +66,14 @@ def run(args: argparse.Namespace) -> int:
     try:
         pred = predict_conditions(study, fit, conditions, fit_dir=args.fit, times=times,
                                   n_draws=args.draws, seed=args.seed,
-                                  allow_extrapolation=args.allow_extrapolation)
+                                  extrapolate=args.extrapolate)
     except ExtrapolationRefused as exc:
         for reason in exc.reasons:
             print(f"kinfit: refused: {reason}", file=sys.stderr)
+        print("kinfit: pass --extrapolate to predict anyway; every output is then marked as "
+              "extrapolated", file=sys.stderr)
         return 1
-    pred = replace(pred, manifest={**pred.manifest, "command": list(sys.argv)})
+    pred = replace(pred, manifest={**pred.manifest, "command": recorded_command(sys.argv)})
     prepare_out_dir(out)
     pred.save(out)
     print(pred.report())

@@ -6,8 +6,12 @@ import argparse
 import sys
 from pathlib import Path
 
+from kinfit.errors import StudyError
+from kinfit.fitting.results import FitResult
 from kinfit.report.build import build_report
 from kinfit.report.render import FIGURE_DIR
+from kinfit.study.freshness import changed_inputs
+from kinfit.study.load import load_study
 
 __all__ = ["add_arguments", "run"]
 
@@ -19,6 +23,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="folder with results.json from 'kinfit fit' (default: --out)")
     parser.add_argument("--out", type=Path, default=Path("reports"), metavar="DIR",
                         help="output folder of the report (default: reports)")
+    parser.add_argument("--allow-changed-data", action="store_true",
+                        help="write the report even though the study's files changed since "
+                             "the fit (the report then says so)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -26,6 +33,7 @@ def run(args: argparse.Namespace) -> int:
     was written; errors of input raise StudyError, which the command line maps to exit 2)."""
 
     fit_dir = args.fit if args.fit is not None else args.out
+    _refuse_changed_data(args.study, fit_dir, allow=args.allow_changed_data)
     result = build_report(args.study, fit_dir, args.out, argv=sys.argv)
     print(f"wrote {result.html}, {result.markdown}, {len(result.figures)} figure files in "
           f"{result.out_dir / FIGURE_DIR}, {len(result.tables)} CSV tables, {result.latex.name}")
@@ -34,3 +42,13 @@ def run(args: argparse.Namespace) -> int:
     if not result.report.status_ok:
         print("kinfit: the report documents a fit that did not converge", file=sys.stderr)
     return 0
+
+
+def _refuse_changed_data(study_path: Path, fit_dir: Path, *, allow: bool) -> None:
+    """Bad input (exit 2): a report would show results of other data than the study names."""
+
+    changed = changed_inputs(load_study(study_path), FitResult.load(fit_dir).manifest)
+    if changed and not allow:
+        raise StudyError(f"{', '.join(changed)} changed since the fit in {fit_dir}, so the "
+                         "report would show results of other data; refit with 'kinfit fit "
+                         f"{study_path} --out {fit_dir}', or pass --allow-changed-data")

@@ -6,10 +6,17 @@ import argparse
 import sys
 
 from kinfit.analysis.diagnosis.diagnosis import diagnose
-from kinfit.cli.common import EXIT_FAILED, EXIT_INTERRUPTED, EXIT_OK, add_common
+from kinfit.cli.common import (
+    EXIT_FAILED,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
+    add_common,
+    adequacy_exit,
+    print_adequacy,
+)
 from kinfit.core.files import prepare_out_dir
 from kinfit.fitting.fit import FitOptions, fit
-from kinfit.fitting.posterior import SampleOptions, sample_study
+from kinfit.fitting.posterior import DEFAULT_SEED, SampleOptions, sample_study
 from kinfit.report.build import build_report
 from kinfit.study.campaign import campaign_summary
 from kinfit.study.load import load_study
@@ -36,13 +43,15 @@ def run(args: argparse.Namespace) -> int:
                                    progress=not args.quiet), argv=sys.argv)
     result.save(out)
     print(result.report())
+    print_adequacy(result.fit.get("adequacy"))
     code = EXIT_OK if result.converged else EXIT_FAILED
     if args.steps > 0:
         step(f"sampling the posterior ({args.steps} steps at most)")
-        post, _ = sample_study(study, result, out, SampleOptions(
+        post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
             progress=not args.quiet), argv=sys.argv)
         print(post.report())
+        print_adequacy(content.get("adequacy"))
         if post.interrupted:
             # what was sampled is checkpointed; the report is still written from it
             code = EXIT_INTERRUPTED
@@ -58,15 +67,21 @@ def run(args: argparse.Namespace) -> int:
               f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
               f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
               file=sys.stderr)
+    if code == EXIT_OK:
+        code = adequacy_exit(args, result.fit.get("adequacy"))
     return code
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_common(p, out=True)
-    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
+
+    p.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                   help=f"seed (default {DEFAULT_SEED})")
     p.add_argument("--multistart", type=int, default=0, metavar="N",
                    help="extra least-squares starts")
     p.add_argument("--steps", type=int, default=10000,
                    help="posterior step cap; sampling stops earlier once converged (0: no "
                         "sampling; default 10000)")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")

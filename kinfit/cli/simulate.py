@@ -13,6 +13,7 @@ __all__ = ["add_arguments", "run"]
 
 
 def run(args: argparse.Namespace) -> int:
+
     study = load_study(args.study)
     sim = simulate(study)
     out = prepare_out_dir(args.out)
@@ -20,7 +21,7 @@ def run(args: argparse.Namespace) -> int:
     write_frame_atomic(out / "runs.csv", runs_frame(sim.runs))
     write_json_atomic(out / "simulation.json", {
         "study": study.name, "parameters": dict(study.parameters.values()), "runs": sim.runs,
-        "manifest": manifest(files=study.files),
+        "manifest": manifest(files=study.files, base=study.path),
     })
     print(runs_frame(sim.runs).to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     print(f"\nwrote {out / 'predictions.csv'}, {out / 'runs.csv'}, {out / 'simulation.json'}")

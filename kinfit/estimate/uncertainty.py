@@ -33,9 +33,9 @@ from kinfit.estimate.identifiability import (  # noqa: F401 - identifiability re
     _to_dict,
     identifiability,
 )
-from kinfit.estimate.solve import SolverSettings, solve_weighted
 from kinfit.estimate.problem import Problem
 from kinfit.estimate.result import Estimate
+from kinfit.estimate.solve import SolverSettings, solve_weighted
 
 __all__ = ['Identifiability', 'Intervals', 'ProfileResult', 'ProfileTrace', 'identifiability', 'linearised_intervals', 'profile_intervals']
 

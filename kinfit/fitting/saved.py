@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.errors import ModelError, RegimeWarning, SolverError, StudyError
+from kinfit.errors import KinfitError, ModelError, RegimeWarning, SolverError, StudyError
 from kinfit.estimate.problem import ErrorModel
 from kinfit.fitting.fit import main_spec
 from kinfit.fitting.results import FitResult
@@ -174,18 +174,25 @@ def covariance_draws(fitted: FittedModel, n: int, rng: np.random.Generator) -> A
 
     Raises
     ------
-    StudyError
-        The fit has no usable covariance.
+    KinfitError
+        The fit has no usable covariance (singular or not positive semi-definite).
     """
     cov_u = fitted.internal_covariance()
     if cov_u is None:
-        raise StudyError("the fit has no covariance (singular information); run "
-                         "'kinfit sample' for posterior draws, or fix the unidentified "
-                         "parameters")
+        raise KinfitError("the fit has no covariance (singular information), so no band can "
+                          "be given; run 'kinfit sample' for posterior draws, or fix the "
+                          "unidentified parameters (vary = false)")
     space = fitted.model.space()
     u_hat = space.to_internal(fitted.theta)
     sym = 0.5 * (cov_u + cov_u.T)
-    u = rng.multivariate_normal(u_hat, sym, size=n, method="eigh")
+    lam, vec = np.linalg.eigh(sym)
+    if lam.min() < -1e-8 * max(abs(lam.max()), 1e-300):
+        raise KinfitError("the fit's covariance is not positive definite (unidentified "
+                          "parameters), so no band can be given; fix them (vary = false) or "
+                          "run 'kinfit sample' for posterior draws")
+    # round-off negatives to zero: a positive semi-definite factor L with L L^T = sym
+    factor = vec * np.sqrt(np.clip(lam, 0.0, None))
+    u = u_hat + rng.standard_normal((n, u_hat.size)) @ factor.T
     x = space.to_physical(u)
     return x[space.contains(x)]
 

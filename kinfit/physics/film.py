@@ -151,7 +151,7 @@ class AgitationFilm(FilmModel):
     -----
     Parameters: ``kc_ref`` [m/s] > 0; ``agitation_exponent`` a [-] in [0, 3];
     ``size_exponent`` b [-] in [-1, 3]. Sherwood correlations for slurries give a of about
-    0.3-0.75 and b between 0 (large Re) and 1 (Sh -> 2) (REFERENCES.md section 4); the accepted
+    0.3-0.75 and b between 0 (large Re) and 1 (Sh -> 2) (Ranz & Marshall 1952; Sano, Yamaguchi & Adachi 1974; common practice); the accepted
     ranges are wider so that a fit can explore.
 
     Examples

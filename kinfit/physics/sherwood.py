@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-
 FloatArray = NDArray[np.float64]
 
 __all__ = ['specific_power', 'kolmogorov_reynolds', 'sherwood_sano', 'sherwood_armenante_kirwan', 'sherwood_levins_glastonbury', 'sherwood_frossling', 'sherwood_ranz_marshall', 'sherwood_wakao_funazkri']
@@ -60,7 +59,7 @@ def sherwood_sano(
     r"""Sano, Yamaguchi & Adachi (1974): :math:`Sh\,\phi_c = 2 + 0.4 (\varepsilon d_p^4/\nu^3)^{1/4} Sc^{1/3}`.
 
     ``shape_factor`` is Carman's phi_c (1 for spheres). J. Chem. Eng. Japan 7, 255-261
-    (form from memory, see REFERENCES.md section 4).
+    (form from memory).
     """
     dp = np.asarray(dp, dtype=float)
     group = (np.asarray(eps, dtype=float) * dp**4 / np.asarray(nu, dtype=float) ** 3) ** 0.25
@@ -70,7 +69,7 @@ def sherwood_sano(
 def sherwood_armenante_kirwan(Re_K: ArrayLike, Sc: ArrayLike) -> FloatArray:
     """Armenante & Kirwan (1989), microparticles: Sh = 2 + 0.52 Re_K^0.52 Sc^(1/3).
 
-    Chem. Eng. Sci. 44, 2781-2796 (form from memory, see REFERENCES.md section 4).
+    Chem. Eng. Sci. 44, 2781-2796 (form from memory).
     """
     return 2.0 + 0.52 * np.asarray(Re_K, dtype=float) ** 0.52 * np.cbrt(Sc)
 
@@ -80,7 +79,7 @@ def sherwood_levins_glastonbury(
 ) -> FloatArray:
     """Levins & Glastonbury (1972): Sh = 2 + 0.47 Re_K^0.62 Sc^0.36 (D/T)^0.17.
 
-    Trans. IChemE 50, 132-146 (form from memory, see REFERENCES.md section 4).
+    Trans. IChemE 50, 132-146 (form from memory).
     """
     Re_K = np.asarray(Re_K, dtype=float)
     return 2.0 + 0.47 * Re_K**0.62 * np.asarray(Sc, dtype=float) ** 0.36 * (

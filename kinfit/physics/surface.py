@@ -362,3 +362,4 @@ def observed_rate_value(Cb: Array, pellet_rate: PelletRate, conductance: Array) 
 
     _, rate = solve_surface(Cb, conductance, g, C_eq=pellet_rate.C_eq, return_rate=True)
     return rate
+

@@ -13,6 +13,7 @@ from pathlib import Path
 from kinfit.core.files import (
     manifest,
     prepare_out_dir,
+    recorded_path,
     write_bytes_atomic,
     write_frame_atomic,
     write_json_atomic,
@@ -114,8 +115,9 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
     html = write_text_atomic(out / "report.html", to_html(report))
     man = manifest(files={str(Path(inputs.fit_dir) / k): v
                           for k, v in inputs.input_hashes.items()},
-                   seed=inputs.result.manifest.get("seed"), argv=argv,
-                   extra={"study": str(inputs.study.path), "notes": list(report.notes),
+                   seed=inputs.result.manifest.get("seed"), argv=argv, base=inputs.study.path,
+                   extra={"study": recorded_path(inputs.study.path, inputs.study.path),
+                          "notes": list(report.notes),
                           "written": [str(p.relative_to(out)) for p in
                                       (html, markdown, *figures, *tables, latex)]})
     man_path = write_json_atomic(out / "report_manifest.json", man)

@@ -2,13 +2,12 @@
 into the sections of the report once; :mod:`kinfit.report.render` writes them as Markdown and
 HTML. Sections appear as their data exist; nothing here fits or samples.
 
-Order: summary, campaign, model, parameters, fit to the data, correlation and identifiability,
+Order: summary, campaign, model, parameters, fit to the data, model adequacy, correlation and identifiability,
 model comparison, transport diagnosis, posterior, limits of validity, cautions, reproducibility.
 """
 
 from __future__ import annotations
 
-import shlex
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -16,29 +15,37 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from kinfit.physics.criteria import REGIMES
+from kinfit.core.files import CAUTIONS
+from kinfit.physics.resistances import REGIMES
 from kinfit.report import figures as fg
 from kinfit.report import posterior_figures as pf
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
-    Code,
     Facts,
     Heading,
     Items,
     Report,
     Section,
     Text,
-    factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
 from kinfit.report.context import ReportContext
 from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
-from kinfit.report.latex import parameters_table
+from kinfit.report.matrix import SetCell, set_matrix
+from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
+from kinfit.report.reproducibility import (
+    _input_states,
+    _rel,
+    latex_table,
+    reproducibility_section,
+)
 from kinfit.report.transport_sections import posterior_section, transport_section
 from kinfit.study.campaign import TEST_MEANING
 from kinfit.study.runs import FACTORS, comparison_sets
@@ -46,23 +53,29 @@ from kinfit.study.runs import FACTORS, comparison_sets
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
 
 #: the safety paragraph of README.md, in substance
-CAUTIONS = (
-    "These results feed reactor design, and reactor design can hurt people. kinfit estimates "
-    "kinetic and transport parameters from the data it was given; it does not assess safety.",
-    "Scale-up, heat removal, exotherms and thermal runaway, pressure relief, and the hazards "
-    "of hydrogen and other flammable or toxic gases under pressure are outside this tool.",
-    "Rates affected by external mass transfer cannot be carried to another reactor, and no "
-    "prediction outside the fitted ranges of temperature, stirrer speed, particle size and "
-    "concentration is warranted (see the limits of validity).",
-    "Check every number before use, and defer to local codes, standards and licensed "
-    "engineering practice.",
+
+FILM_SHARE_CUT = 0.05
+
+_SOLVER_WORDS = (
+    ("both `ftol` and `xtol`", "the sum of squares and the parameters both stopped changing "
+                               "(relative changes below the tolerances)"),
+    ("`ftol`", "the sum of squares stopped falling (relative change below the tolerance)"),
+    ("`xtol`", "the parameters stopped moving (relative step below the tolerance)"),
+    ("`gtol`", "the gradient vanished (below the tolerance)"),
+    ("maximum number of function evaluations", "the evaluation budget ran out before the "
+                                               "fit settled"),
 )
 
-def _cmd(argv: Sequence[str]) -> str:
-    parts = [str(a) for a in argv]
-    if parts and Path(parts[0]).name in ("kinfit", "__main__.py", "cli.py"):
-        parts[0] = "kinfit"
-    return shlex.join(parts)
+
+def plain_message(message: Any) -> str:
+    """The optimiser's stopping message as a plain sentence fragment (scipy's
+    least_squares messages name the tolerance that stopped it)."""
+    text = str(message or "").strip()
+    low = text.lower()
+    for key, words in _SOLVER_WORDS:
+        if key.lower() in low:
+            return words
+    return text.rstrip(".") or "no message"
 
 
 class ReportBuilder(ReportContext):
@@ -81,9 +94,10 @@ class ReportBuilder(ReportContext):
     def build(self) -> Report:
         """All sections, the CSV tables and the LaTeX table."""
         makers = [self._summary, self._campaign, lambda: model_section(self), self._parameters,
-                  self._fit, self._identifiability, self._comparison,
+                  self._fit, lambda: adequacy_section(self), self._identifiability,
+                  self._comparison,
                   lambda: transport_section(self), lambda: posterior_section(self),
-                  self._validity, self._cautions, self._reproducibility]
+                  self._validity, self._cautions, lambda: reproducibility_section(self)]
         sections = [s for s in (m() for m in makers) if s is not None]
         conv = bool(self.res.fit.get("converged"))
         status = ("the least-squares fit converged" if conv else
@@ -94,7 +108,7 @@ class ReportBuilder(ReportContext):
             subtitle=f"model {label}; {len(self.res.runs)} runs, "
                      f"{self.res.fit.get('n_obs', '?')} observations",
             status_ok=conv, status=status, sections=tuple(sections),
-            figures=tuple(self._figures), csv=self.csv, latex=self._latex(),
+            figures=tuple(self._figures), csv=self.csv, latex=latex_table(self),
             notes=tuple(self.notes),
         )
 
@@ -102,7 +116,7 @@ class ReportBuilder(ReportContext):
         f, res = self.res.fit, self.res
         blocks: list[Any] = []
         if f.get("converged"):
-            blocks.append(Text(f"The least-squares fit converged ({f.get('message', '')}).",
+            blocks.append(Text(f"The least-squares fit converged: {plain_message(f.get('message'))}.",
                                "ok"))
         else:
             blocks.append(Text(
@@ -112,11 +126,13 @@ class ReportBuilder(ReportContext):
         varying = [(n, p) for n, p in res.parameters.items() if p.get("vary", True)]
         items = []
         for n, p in varying:
-            ci = fmt_interval(p.get("ci95"))
-            unit = fg.pretty_unit(p.get("unit"))
+            ci = fmt_interval(self.shown(p.get("ci95"), p.get("unit"))[0])
+            est, unit = self.shown(p.get("estimate"), p.get("unit"))
+            unit = fg.pretty_unit(unit)
             unit = "" if unit == "–" else f" {unit}"
-            items.append(f"{n} = {fmt(p.get('estimate'))}{unit}, 95 % interval {ci} "
+            items.append(f"{n} = {fmt(est)}{unit}, 95 % interval {ci} "
                          f"({p.get('ci_method') or 'linear'})")
+        blocks.extend(adequacy_summary(f, self.inp.posterior))
         blocks.append(Heading("Estimates"))
         blocks.append(Items(tuple(items)))
         intrinsic = [rid for rid, r in res.runs.items() if r.get("intrinsic")]
@@ -147,15 +163,15 @@ class ReportBuilder(ReportContext):
                            "suggested runs are left out")
         if missing:
             blocks.append(Items(tuple(missing), "note"))
-        changed = [Path(p).name for p, _, state in self._input_states() if state != "same"]
+        changed = [Path(p).name for p, _, state in _input_states(self) if state != "same"]
         if changed:
             blocks.append(Text("The study read for this report is not the one that was "
                                f"fitted: {', '.join(changed)} differ or are missing. Refit "
                                "before relying on this report.", "warning"))
         blocks.append(Facts((
-            ("study", f"{self.inp.study.name} ({self.inp.study.path})"),
+            ("study", f"{self.inp.study.name} ({Path(self.inp.study.path).name})"),
             ("model", str(res.model.get("label", ""))),
-            ("fit folder", str(self.inp.fit_dir)),
+            ("fit folder", _rel(self, self.inp.fit_dir)),
             ("kinfit", str(get_path(res.manifest, "versions", "kinfit", default="?"))),
         )))
         return Section("summary", "Summary", tuple(blocks))
@@ -163,7 +179,7 @@ class ReportBuilder(ReportContext):
     def _campaign(self) -> Section:
         study = self.inp.study
         frame = study.frame()
-        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [kg/m³]", "C₀ [mol/m³]",
+        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [g/L]", "C₀ [mol/m³]",
                   "points", "span [min]", "group")
         rows = []
         for r in study.runs:
@@ -190,7 +206,8 @@ class ReportBuilder(ReportContext):
                        numeric=(False,) + (True,) * 8 + (False,), csv="runs.csv"),
         ]
         varied = study.varied_factors()
-        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels ({', '.join(factor_text(f, x) for x in v)})"
+        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels "
+                 f"({', '.join(self.factor_text(f, x) for x in v)})"
                  for f, v in varied.items()]
         blocks.append(Heading("Factors varied"))
         blocks.append(Items(tuple(items) or ("none: every run at the same conditions",)))
@@ -198,7 +215,7 @@ class ReportBuilder(ReportContext):
         if fixed:
             blocks.append(Text("Held constant: " + ", ".join(fixed) + "."))
         blocks.append(Heading("Transport tests the campaign supports"))
-        set_rows: list[tuple[str, ...]] = []
+        set_cells: list[SetCell] = []
         meanings: list[str] = []
         for factor, meaning in TEST_MEANING.items():
             label = FACTOR_LABEL[factor][0]
@@ -209,19 +226,19 @@ class ReportBuilder(ReportContext):
                 continue
             meanings.append(f"{label} ({len(sets)} set{'s' if len(sets) != 1 else ''}): tests "
                             f"{meaning}")
-            set_rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
-                      ", ".join(factor_text(f, x) for f, x in s.fixed.items() if f in varied),
-                      ", ".join(s.runs)) for s in sets]
+            set_cells += [SetCell(factor, tuple(s.values), dict(s.fixed), " vs ".join(s.runs))
+                          for s in sets]
         if "temperature" not in varied:
             meanings.append("temperature: one level only, so the activation energy is not "
                             "identified")
         blocks.append(Items(tuple(meanings)))
-        if set_rows:
+        if set_cells:
+            m = set_matrix(set_cells, list(varied), self.factor_text)
             blocks.append(self.table(
                 "Sets of runs that differ in one factor only (the other factors equal within "
-                "1 %): the classic transport tests; their statistical outcome is in the "
-                "transport diagnosis.", ("factor varied", "levels", "others held at", "runs"),
-                set_rows))
+                "1 %): the classic transport tests, each cell the runs of one set at the "
+                "conditions of its row and column; their statistical outcome is in the "
+                "transport diagnosis.", m.header, m.rows))
         return Section("campaign", "Campaign", tuple(blocks))
 
     def _parameters(self) -> Section:
@@ -248,15 +265,24 @@ class ReportBuilder(ReportContext):
                                   "estimate": scale})
             q = post.get(name) or {}
             flag = " †" if p.get("at_bound") else ""
-            row = [f"{name} [{fg.pretty_unit(p.get('unit'))}]{flag}", fmt(p.get("estimate")),
-                   fmt(p.get("stderr"), 3) if p.get("vary", True) else "fixed"]
+            u = p.get("unit")
+            shown_unit = self.shown(None, u)[1]
+            row = [f"{name} [{fg.pretty_unit(shown_unit)}]{flag}",
+                   fmt(self.shown(p.get("estimate"), u)[0]),
+                   fmt(self.shown(p.get("stderr"), u)[0], 3) if p.get("vary", True)
+                   else "fixed"]
             tone: list[str | None] = [None, None, None]
             for k in labels:
                 if has[k]:
-                    row.append(fmt_interval(p.get(k), 3) if p.get("vary", True) else "–")
+                    row.append(fmt_interval(self.shown(p.get(k), u)[0], 3)
+                               if p.get("vary", True) else "–")
                     tone.append(None)
             if post:
-                row += [fmt(q.get("median")), fmt_interval([q.get("q05"), q.get("q95")], 3)
+                se = q.get("mcse") or {}
+                sh = self.shown
+                row += [fmt_mc(sh(q.get("median"), u)[0], sh(se.get("median"), u)[0]),
+                        fmt_interval_mc(sh([q.get("q05"), q.get("q95")], u)[0],
+                                        sh([se.get("q05"), se.get("q95")], u)[0], 3)
                         if q else "–"]
                 tone += [None, None]
             rows.append(row)
@@ -271,8 +297,8 @@ class ReportBuilder(ReportContext):
             if post:
                 csv_row.update({"posterior_median": q.get("median"), "posterior_q05":
                                 q.get("q05"), "posterior_q95": q.get("q95"),
-                                "posterior_hdi94_lo": (q.get("hdi94") or [None, None])[0],
-                                "posterior_hdi94_hi": (q.get("hdi94") or [None, None])[1],
+                                "posterior_hdi90_lo": (q.get("hdi90") or [None, None])[0],
+                                "posterior_hdi90_hi": (q.get("hdi90") or [None, None])[1],
                                 "rhat": q.get("rhat"), "ess": q.get("ess")})
             csv_rows.append(csv_row)
         self.csv["parameters.csv"] = pd.DataFrame(csv_rows)
@@ -309,7 +335,7 @@ class ReportBuilder(ReportContext):
         f = self.res.fit
         obs = self.inp.observations
         facts = [("converged", "yes" if f.get("converged") else "NO"),
-                 ("message", str(f.get("message", "")))]
+                 ("stopping rule", plain_message(f.get("message")))]
         for key, label in (("n_obs", "observations"), ("n_params", "parameters varied"),
                            ("dof", "degrees of freedom"), ("sse", "SSE"),
                            ("sigma", "residual standard deviation"),
@@ -455,11 +481,12 @@ class ReportBuilder(ReportContext):
                          "mol/m³"))
         items = ["Use the kinetics only inside these ranges; extrapolation in temperature, "
                  "particle size, stirrer speed or concentration is not supported by the data."]
-        film_runs = [rid for rid, r in res.runs.items()
-                     if r.get("regime") == "film" or (r.get("passes") or {}).get("carberry")
-                     is False]
+        film_runs = [rid for rid, r in res.runs.items() if r.get("regime") == "film"
+                     or float((r.get("shares") or {}).get("film") or 0.0) >= FILM_SHARE_CUT]
         if film_runs:
-            items.append("Film resistance matters in runs " + ", ".join(film_runs) + ": their "
+            items.append(f"The film takes {FILM_SHARE_CUT:.0%} or more of the driving force "
+                         "(the rate error the kinetic criteria allow) in runs "
+                         + ", ".join(film_runs) + ": their "
                          "observed rates depend on agitation and particle size in this vessel "
                          "and must not be carried to another reactor; only the intrinsic "
                          "parameters, with the film model, may be.")
@@ -483,102 +510,6 @@ class ReportBuilder(ReportContext):
     def _cautions(self) -> Section:
         return Section("cautions", "Cautions", tuple(Text(t, "warning" if i == 0 else "plain")
                                                    for i, t in enumerate(CAUTIONS)))
-
-    def _reproducibility(self) -> Section:
-        man = self.res.manifest or {}
-        blocks: list[Any] = []
-        rows = self._input_states()
-        tones = [[None, None, "ok" if state == "same" else "fail"] for *_, state in rows]
-        if rows:
-            blocks.append(self.table("Input files of the fit with their SHA-256 digests, "
-                                     "compared with the study files this report read.",
-                                     ("file", "SHA-256 at the fit", "study read now"), rows,
-                                     tones=tones))
-            if any(t[2] == "fail" for t in tones):
-                self.notes.append("the study read for this report differs from the files "
-                                  "that were fitted (see the reproducibility section)")
-        read = [(name, digest) for name, digest in self.inp.input_hashes.items()]
-        blocks.append(self.table("Files of the fit folder this report was built from.",
-                                 ("file", "SHA-256"), read))
-        versions = man.get("versions") or {}
-        if versions:
-            blocks.append(Facts(tuple((k, str(v)) for k, v in versions.items())))
-        opts = man.get("options") or {}
-        blocks.append(Facts((("seed", str(man.get("seed"))), ("platform",
-                                                               str(man.get("platform", "?"))))
-                            + tuple((f"option {k}", str(v)) for k, v in opts.items())))
-        if man.get("command"):
-            blocks.append(Code(_cmd(man["command"]), "command line recorded by the fit"))
-        post_cmd = get_path(self.inp.posterior, "manifest", "command")
-        if post_cmd:
-            blocks.append(Code(_cmd(post_cmd), "command line recorded by the sampler"))
-        if self.argv:
-            blocks.append(Code(_cmd(self.argv), "command line of this report"))
-        blocks.append(Code("\n".join(self._reproduce(man, opts)),
-                           "to reproduce (run from the folder the study paths are relative to)"))
-        return Section("reproducibility", "Reproducibility", tuple(blocks))
-
-    def _input_states(self) -> list[tuple[str, str, str]]:
-        """(recorded path, recorded digest, state) of every input the fit recorded, compared
-        with the study files read for this report (matched by path, else by file name)."""
-        now = {str(Path(k).resolve()): v for k, v in self.inp.study.files.items()}
-        by_name = {Path(k).name: v for k, v in self.inp.study.files.items()}
-        rows = []
-        for path, info in ((self.res.manifest or {}).get("inputs") or {}).items():
-            digest = info.get("sha256") if isinstance(info, Mapping) else str(info)
-            current = now.get(str(Path(path).resolve()), by_name.get(Path(path).name))
-            if current is None:
-                state = "not read by this study"
-            else:
-                state = "same" if current == digest else "DIFFERENT from the fitted file"
-            rows.append((str(path), str(digest), state))
-        return rows
-
-    def _reproduce(self, man: Mapping[str, Any], opts: Mapping[str, Any]) -> list[str]:
-        study = str(self.inp.study.path)
-        fit_dir = str(self.inp.fit_dir)
-        cmd = ["kinfit", "fit", study, "--out", fit_dir]
-        if man.get("seed") is not None:
-            cmd += ["--seed", str(man["seed"])]
-        if opts.get("multistart"):
-            cmd += ["--multistart", str(opts["multistart"])]
-        if opts.get("profile") is False:
-            cmd.append("--no-profile")
-        if opts.get("bootstrap"):
-            cmd += ["--bootstrap", str(opts["bootstrap"])]
-            if opts.get("bootstrap_kind") == "group":
-                cmd.append("--bootstrap-runs")
-        cands = [str(r.get("model")) for r in list(self.res.comparison)[1:]]
-        if cands:
-            cmd += ["--compare", *cands]
-        lines = [shlex.join(cmd)]
-        sampler = get_path(self.inp.posterior, "sampler", default={}) or {}
-        if sampler:
-            s = ["kinfit", "sample", study, "--fit", fit_dir]
-            for key, flag in (("seed", "--seed"), ("walkers", "--walkers"),
-                              ("max_steps", "--steps"), ("chunk", "--chunk"),
-                              ("tau_multiple", "--tau-multiple"), ("moves", "--moves")):
-                if sampler.get(key) is not None:
-                    s += [flag, str(sampler[key])]
-            lines.append(shlex.join(s))
-        out = str(self.out_dir) if self.out_dir is not None else fit_dir
-        lines.append(shlex.join(["kinfit", "report", study, "--fit", fit_dir, "--out", out]))
-        return lines
-
-    def _latex(self) -> str:
-        post = get_path(self.inp.posterior, "parameters", default=None)
-        params = dict(self.res.parameters)
-        scales = self.res.fit.get("error_scales") or {}
-        for name in post or {}:
-            if name not in params:
-                params[name] = {"estimate": scales.get(name), "unit": self.units.get(name, ""),
-                                "vary": True, "ci95": None, "ci_method": None}
-        return parameters_table(
-            params, posterior=post,
-            caption=f"Parameters of the {self.res.model.get('label', 'kinetic')} model fitted "
-                    f"to study {self.res.study}: least-squares estimates (SI units) with 95 % "
-                    "intervals" + ("; posterior medians with central 90 % intervals" if post
-                                   else "") + ".")
 
 
 def build_content(inputs: ReportInputs, *, argv: Sequence[str] | None = None,

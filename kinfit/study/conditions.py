@@ -12,11 +12,11 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.core.units import parse_header, parse_quantity, to_si
 from kinfit.errors import StudyError
+from kinfit.study.tables import read_table, table_line
 from kinfit.study.runs import FACTORS, Run, Study
 
 __all__ = ['Condition', 'FACTOR_KINDS', 'FACTOR_ALIASES', 'PAD_RUN', 'campaign_defaults', 'parse_conditions', 'read_conditions', 'conditions_from_argument', 'conditions_study', 'display', 'parse_times']
@@ -205,11 +205,7 @@ def read_conditions(path: str | Path, study: Study) -> list[Condition]:
     path = Path(path)
     if not path.is_file():
         raise StudyError(f"conditions table '{path}' does not exist; check the path")
-    try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                            comment="#")
-    except (ValueError, OSError, pd.errors.ParserError) as exc:
-        raise StudyError(f"{path.name}: cannot read the table ({exc})") from None
+    frame = read_table(path)
     cols: dict[str, tuple[str, str | None]] = {}
     for header in frame.columns:
         h = parse_header(str(header), where=path.name)
@@ -237,7 +233,7 @@ def read_conditions(path: str | Path, study: Study) -> list[Condition]:
                 number = float(cell)
             except ValueError:
                 raise StudyError(f"'{cell}' is not a number; write a plain number (the unit "
-                                 "goes in the header)", file=path.name, row=i + 1,
+                                 "goes in the header)", file=path.name, row=table_line(frame, i),
                                  column=header) from None
             values[f] = float(to_si(number, unit or "", FACTOR_KINDS[f],
                                     where=f"{path.name}, column '{header}'"))

@@ -6,7 +6,6 @@ records, the one object the rest of kinfit receives.
 from __future__ import annotations
 
 import tomllib
-import zipfile
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -15,11 +14,13 @@ import numpy as np
 import pandas as pd
 
 from kinfit.core.files import file_sha256
-from kinfit.core.units import parse_header, parse_quantity, printable, to_si
-from kinfit.errors import StudyError
+from kinfit.core.units import parse_quantity, printable
+from kinfit.errors import StudyError, did_you_mean
 from kinfit.physics.geometry import GEOMETRIES
 from kinfit.study.parameters import parameter_table_from_toml
+from kinfit.study.plausibility import check_density, check_runs
 from kinfit.study.runs import RUN_TEXT_COLUMNS, Run, Study, _frozen
+from kinfit.study.tables import _columns, _is_file, _si_column, _table_ref, read_table, table_line
 
 __all__ = ['load_study']
 
@@ -43,13 +44,6 @@ OBS_COLUMNS: dict[str, str] = {
 
 
 # ----------------------------------------------------------------------------- loading
-def _is_file(path: Path) -> bool:
-    """``path.is_file()`` that says False, not raises, for names the OS cannot even look up
-    (too long, an embedded NUL byte)."""
-    try:
-        return path.is_file()
-    except (OSError, ValueError):
-        return False
 
 
 def _read_toml(path: Path) -> dict[str, Any]:
@@ -69,126 +63,9 @@ def _read_toml(path: Path) -> dict[str, Any]:
         raise StudyError(f"{path}: TOML syntax error: {exc}; fix that line") from None
 
 
-def _table_ref(data: Mapping[str, Any], key: str, base: Path, study: Path) -> tuple[Path, Any]:
-    if key not in data:
-        raise StudyError(
-            f"{study}: [data] has no '{key}' entry; add {key} = \"{key}.csv\" (a path relative "
-            "to the study file)"
-        )
-    ref = data[key]
-    sheet: Any = 0
-    if isinstance(ref, Mapping):
-        if "file" not in ref:
-            raise StudyError(f"{study}: [data].{key} needs a 'file' key")
-        sheet = ref.get("sheet", 0)
-        ref = ref["file"]
-    if not isinstance(ref, str):
-        raise StudyError(f"{study}: [data].{key} must be a file path string, got {ref!r}")
-    try:
-        path = (base / ref).resolve()
-    except (OSError, ValueError, RuntimeError):
-        path = base / ref
-    if not _is_file(path):
-        raise StudyError(
-            f"{study}: [data].{key} names '{printable(ref)}', which does not exist or is not a "
-            f"file (looked for {printable(path)}); fix the path, relative to the study file"
-        )
-    return path, sheet
-
-
-def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
-    try:
-        if path.suffix.lower() in (".xlsx", ".xlsm"):
-            try:
-                frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
-            except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
-                raise StudyError(
-                    f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
-                    f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
-                ) from None
-        elif path.suffix.lower() in (".csv", ".txt"):
-            frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                                comment="#")
-        else:
-            raise StudyError(f"{path.name}: tables must be .csv or .xlsx, got '{path.suffix}'")
-    except StudyError:
-        raise
-    except (ValueError, OSError, pd.errors.ParserError, KeyError, zipfile.BadZipFile) as exc:
-        text = " ".join(str(exc).split())  # pandas' messages end with a newline
-        raise StudyError(f"{path.name}: cannot read the table ({printable(text, limit=160)}); "
-                         "check the file") from None
-    if frame.empty and len(frame.columns) == 0:
-        raise StudyError(f"{path.name}: the table is empty; it needs a header line and rows")
-    return frame
-
-
-def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) -> np.ndarray:
-    values = frame[col]
-    out = np.empty(len(values))
-    for i, cell in enumerate(values.tolist()):
-        run = None if runs is None else str(runs.iloc[i])
-        if cell is None or (isinstance(cell, float) and np.isnan(cell)) or str(cell).strip() == "":
-            raise StudyError(
-                "the cell is empty; fill it in or delete the row",
-                file=fname, row=i + 1, column=col, run=run,
-            )
-        try:
-            out[i] = float(str(cell).strip())
-        except ValueError:
-            raise StudyError(
-                f"'{printable(cell)}' is not a number; write a plain number (the unit goes in "
-                "the header)",
-                file=fname, row=i + 1, column=col, run=run,
-            ) from None
-        if not np.isfinite(out[i]):
-            raise StudyError(
-                f"'{cell}' is not a finite number", file=fname, row=i + 1, column=col, run=run
-            )
-    return out
-
-
-def _columns(frame: pd.DataFrame, fname: str, allowed: dict[str, str],
-             text_cols: tuple[str, ...]) -> dict[str, tuple[str, str | None]]:
-    """Map column name -> (header text, unit) and reject unknown or duplicate columns."""
-    cols: dict[str, tuple[str, str | None]] = {}
-    for header in frame.columns:
-        if not str(header).strip().isprintable():
-            raise StudyError(f"column header '{printable(header)}' holds a non-printable "
-                             "character; retype the header", file=fname)
-        h = parse_header(str(header), where=fname)
-        if h.name in cols:
-            raise StudyError(f"column '{h.name}' appears twice; keep one", file=fname)
-        if h.name not in allowed and h.name not in text_cols:
-            raise StudyError(
-                f"unknown column '{header}'; allowed columns are "
-                f"{sorted(list(allowed) + list(text_cols))}", file=fname
-            )
-        if h.name in allowed and allowed[h.name] != "dimensionless" and not h.unit:
-            raise StudyError(
-                f"column '{header}' has no unit; write it as '{h.name} [unit]'", file=fname
-            )
-        cols[h.name] = (str(header), h.unit)
-    return cols
-
-
-def _si_column(frame, cols, name, kind, fname, runs):
-    header, unit = cols[name]
-    raw = _numeric(frame, header, fname, runs)
-    si = np.asarray(to_si(raw, unit or "", kind, where=f"{fname}, column '{header}'"))
-    bad = np.flatnonzero(~np.isfinite(si))
-    if bad.size:
-        i = int(bad[0])
-        raise StudyError(
-            f"{raw[i]:g} {unit or ''} overflows once converted to SI units; correct the value or "
-            "its unit", file=fname, row=i + 1, column=header,
-            run=None if runs is None else str(runs.iloc[i]),
-        )
-    return si
-
-
 def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[str]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     allowed = {k: v[0] for k, v in RUN_COLUMNS.items()}
     cols = _columns(frame, fname, allowed, RUN_TEXT_COLUMNS)
     for name, (_, required, _) in RUN_COLUMNS.items():
@@ -202,19 +79,20 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
     ids = [str(x).strip() for x in frame[cols["run"][0]].tolist()]
     for i, rid in enumerate(ids):
         if not rid or rid.lower() == "nan":
-            raise StudyError("the run identifier is empty", file=fname, row=i + 1, column="run")
+            raise StudyError("the run identifier is empty", file=fname, row=table_line(frame, i), column="run")
         if not rid.isprintable():
             raise StudyError(f"the run identifier '{printable(rid)}' holds a non-printable "
                              "character; use letters, digits and punctuation", file=fname,
-                             row=i + 1, column="run")
+                             row=table_line(frame, i), column="run")
     seen: dict[str, int] = {}
     for i, rid in enumerate(ids):
         if rid in seen:
             raise StudyError(
-                f"run id '{rid}' appears twice (rows {seen[rid]} and {i + 1}); give each run "
-                "its own id", file=fname, row=i + 1, column="run", run=rid,
+                f"run id '{rid}' appears twice (rows {seen[rid]} and {table_line(frame, i)}); give "
+                "each run "
+                "its own id", file=fname, row=table_line(frame, i), column="run", run=rid,
             )
-        seen[rid] = i + 1
+        seen[rid] = table_line(frame, i)
     id_series = pd.Series(ids)
     values: dict[str, np.ndarray] = {}
     for name, (kind, _, positive) in RUN_COLUMNS.items():
@@ -231,7 +109,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
             raise StudyError(
                 f"{name} must be {need}, got {raw} {cols[name][1] or ''}".rstrip()
                 + "; correct the value or its unit",
-                file=fname, row=i + 1, column=cols[name][0], run=ids[i],
+                file=fname, row=table_line(frame, i), column=cols[name][0], run=ids[i],
             )
         values[name] = v
     runs: dict[str, dict[str, Any]] = {}
@@ -242,6 +120,8 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
                 cell = frame[cols[tc][0]].iloc[i]
                 text = "" if cell is None or str(cell) == "nan" else str(cell).strip()
                 rec[tc] = text or None if tc == "group" else text
+        rec["_line"] = table_line(frame, i)
+        rec["_headers"] = {name: cols[name][0] for name in values}
         runs[rid] = rec
     return runs, ids
 
@@ -249,7 +129,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
 def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                        tolerance: float) -> tuple[str, dict[str, dict[str, np.ndarray]]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     cols = _columns(frame, fname, OBS_COLUMNS, ("run",))
     if "run" not in cols:
         raise StudyError("missing column 'run' (the run identifier)", file=fname)
@@ -276,13 +156,13 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if rid not in runs:
             raise StudyError(
                 f"observations name run '{printable(rid)}', which the runs table lacks; add the "
-                "run or fix the id", file=fname, row=i + 1, column="run", run=printable(rid),
+                "run or fix the id", file=fname, row=table_line(frame, i), column="run", run=printable(rid),
             )
     weights = (_si_column(frame, cols, "weight", "dimensionless", fname, id_series)
                if "weight" in cols else np.ones(len(ids)))
     if np.any(weights <= 0):
         i = int(np.nonzero(weights <= 0)[0][0])
-        raise StudyError("weight must be > 0", file=fname, row=i + 1, column="weight", run=ids[i])
+        raise StudyError("weight must be > 0", file=fname, row=table_line(frame, i), column="weight", run=ids[i])
     rep = (_si_column(frame, cols, "replicate", "dimensionless", fname, id_series)
            if "replicate" in cols else np.zeros(len(ids)))
     out: dict[str, dict[str, np.ndarray]] = {}
@@ -293,7 +173,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if neg.size:
             i = int(neg[0])
             raise StudyError(f"rate must be >= 0, got {frame[cols['rate'][0]].iloc[i]}",
-                             file=fname, row=i + 1, column=cols["rate"][0], run=ids[i])
+                             file=fname, row=table_line(frame, i), column=cols["rate"][0], run=ids[i])
         for rid in dict.fromkeys(ids):
             m = idx == rid
             out[rid] = {"rates": rate[m], "weights": weights[m]}
@@ -309,19 +189,19 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if bad.size:
             i = int(bad[0])
             raise StudyError(f"conversion must lie in [0, 1], got {x[i]:g}",
-                             file=fname, row=i + 1, column=col, run=ids[i])
+                             file=fname, row=table_line(frame, i), column=col, run=ids[i])
         c0 = np.array([runs[r]["initial_concentration"] for r in ids])
         c = c0 * (1.0 - x)
     neg_t = np.nonzero(t < 0)[0]
     if neg_t.size:
         i = int(neg_t[0])
         raise StudyError(f"time must be >= 0, got {frame[cols['time'][0]].iloc[i]}",
-                         file=fname, row=i + 1, column=cols["time"][0], run=ids[i])
+                         file=fname, row=table_line(frame, i), column=cols["time"][0], run=ids[i])
     neg = np.nonzero(c < -tolerance * np.array([runs[r]["initial_concentration"] for r in ids]))[0]
     if neg.size:
         i = int(neg[0])
         raise StudyError(f"concentration must be >= 0, got {frame[col].iloc[i]}",
-                         file=fname, row=i + 1, column=col, run=ids[i])
+                         file=fname, row=table_line(frame, i), column=col, run=ids[i])
     for rid in dict.fromkeys(ids):
         rows = np.nonzero(idx == rid)[0]
         c0 = runs[rid]["initial_concentration"]
@@ -333,7 +213,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                 raise StudyError(
                     f"time does not increase within the run ({frame[cols['time'][0]].iloc[j]} "
                     "after a time at least as late); sort the rows by time or mark replicates "
-                    "in a 'replicate' column", file=fname, row=j + 1, column=cols["time"][0],
+                    "in a 'replicate' column", file=fname, row=table_line(frame, j), column=cols["time"][0],
                     run=rid,
                 )
         high = rows[c[rows] > c0 * (1.0 + tolerance)]
@@ -342,7 +222,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
             raise StudyError(
                 f"concentration {c[j]:.6g} mol/m^3 exceeds the run's initial concentration "
                 f"{c0:.6g} mol/m^3 by more than {tolerance:.0%}; check the value, its unit, or "
-                "the run's initial_concentration", file=fname, row=j + 1, column=col, run=rid,
+                "the run's initial_concentration", file=fname, row=table_line(frame, j), column=col, run=rid,
             )
         out[rid] = {"times": t[rows], "concentrations": np.maximum(c[rows], 0.0),
                     "weights": weights[rows]}
@@ -355,11 +235,13 @@ SECTION_KEYS: dict[str, frozenset[str]] = {
     "study": frozenset({"name", "description", "author", "date", "notes"}),
     "data": frozenset({"runs", "observations", "tolerance"}),
     "catalyst": frozenset({"geometry", "particle_density", "porosity", "name", "notes"}),
-    "pellet": frozenset({"diffusivity", "molecular_diffusivity"}),
+    "pellet": frozenset({"diffusivity", "molecular_diffusivity", "temperature_scaling"}),
     "error": frozenset({"model"}),
     "fit": frozenset({"compare"}),
     "fluid": frozenset({"solvent", "viscosity", "density", "molar_mass", "association_factor",
                         "solute_molar_volume", "diffusivity", "diffusivity_temperature"}),
+    # the stirred vessel, for the just-suspended check (kinfit/analysis/suspension.py)
+    "vessel": frozenset({"impeller_diameter", "suspension_constant", "notes"}),
 }
 SECTIONS = frozenset({*SECTION_KEYS, "kinetics", "film", "parameters"})
 
@@ -374,8 +256,9 @@ def _section(doc: Mapping[str, Any], name: str, path: Path, required: bool) -> d
     if allowed is not None:
         unknown = sorted(set(sec) - allowed)
         if unknown:
-            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'; "
-                             f"allowed keys are {sorted(allowed)}")
+            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'"
+                             f"{did_you_mean(unknown[0], allowed)}; allowed keys are "
+                             f"{sorted(allowed)}")
     return dict(sec)
 
 
@@ -426,6 +309,15 @@ def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]
     return out
 
 
+def _check_vessel(sec: dict[str, Any], path: Path) -> None:
+    """The [vessel] section: a positive impeller diameter and Zwietering's constant S."""
+    _quantities({k: v for k, v in sec.items() if k == "impeller_diameter"}, "vessel", path)
+    s = sec.get("suspension_constant")
+    if s is not None and (isinstance(s, bool) or not isinstance(s, int | float) or not s > 0):
+        raise StudyError(f"{path.name} [vessel].suspension_constant must be a positive number "
+                         f"(Zwietering's S, typically 4 to 12), got {printable(repr(s))}")
+
+
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file and its tables.
 
@@ -446,9 +338,13 @@ def load_study(path: str | Path) -> Study:
     path = Path(path)
     doc = _read_toml(path)
     stray = sorted(set(doc) - SECTIONS)
+    if "claim" in stray:
+        raise StudyError(f"{path} is a claim file ([[claim]] tables), not a study; judge it "
+                         f"with 'kinfit audit {path}'")
     if stray:
         raise StudyError(f"{path}: unknown section or key '{printable(stray[0])}' at the top "
-                         f"level; the study file's sections are {sorted(SECTIONS)}")
+                         f"level{did_you_mean(stray[0], SECTIONS)}; the study file's sections "
+                         f"are {sorted(SECTIONS)}")
     base = path.resolve().parent
     files = {str(path): file_sha256(path)}
     data = _section(doc, "data", path, True)
@@ -495,9 +391,13 @@ def load_study(path: str | Path) -> Study:
                          "write for example particle_density = \"1500 kg/m^3\"")
     if catalyst["particle_density"] <= 0:
         raise StudyError(f"{path.name} [catalyst]: particle_density must be > 0")
+    check_density(catalyst["particle_density"], f"{path.name} [catalyst].particle_density")
     kinetics = _quantities(_section(doc, "kinetics", path, True), "kinetics", path)
     if "rate_law" not in kinetics:
-        raise StudyError(f"{path.name} [kinetics]: rate_law is missing; write rate_law = \"power\"")
+        typo = [k for k in kinetics if did_you_mean(k, ["rate_law"])]
+        raise StudyError(f"{path.name} [kinetics]: rate_law is missing" + (
+            f"; '{printable(typo[0])}' looks like a misspelling of 'rate_law'" if typo else "")
+            + "; write rate_law = \"power\" (or another rate law)")
     if not isinstance(kinetics["rate_law"], str) or not kinetics["rate_law"].strip():
         raise StudyError(f"{path.name} [kinetics]: rate_law must be the name of a rate law, "
                          f"such as \"power\"; got {printable(repr(kinetics['rate_law']))}")
@@ -517,6 +417,19 @@ def load_study(path: str | Path) -> Study:
                           f"{path.name} [error]", "constant")
     fit = _section(doc, "fit", path, False)
     fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
+    # transport scales with the liquid's viscosity by default when the study names its liquid
+    default_scaling = "viscosity" if fluid.get("solvent") else "none"
+    for sec, sec_name in ((pellet, "pellet"), (film, "film")):
+        sec["temperature_scaling"] = _choice(sec, "temperature_scaling", ("viscosity", "none"),
+                                             f"{path.name} [{sec_name}]", default_scaling)
+        if sec["temperature_scaling"] == "viscosity" and not fluid:
+            raise StudyError(f"{path.name} [{sec_name}]: temperature_scaling = \"viscosity\" "
+                             "needs the liquid's viscosity: add a [fluid] section (e.g. solvent "
+                             "= \"water\"), or set temperature_scaling = \"none\"")
+    _check_vessel(_section(doc, "vessel", path, False), path)
+    if "density" in fluid:
+        check_density(fluid["density"], f"{path.name} [fluid].density")
+    check_runs(run_info, runs_path.name, film_model=str(film["model"]).strip().lower())
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))

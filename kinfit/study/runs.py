@@ -13,6 +13,7 @@ from numpy.typing import NDArray
 
 from kinfit.errors import StudyError
 from kinfit.study.parameters import ParameterTable
+from kinfit.study.plausibility import uninformative_runs
 
 __all__ = ['Run', 'Study', 'FACTORS', 'comparison_sets', 'ComparisonSet']
 
@@ -75,6 +76,18 @@ class Run:
     group: str | None = None
     volume: float | None = None
     note: str = ""
+
+    def __repr__(self) -> str:
+        """The run in the lab's units, e.g. ``Run('R01', T=40 degC, N=300 rpm, dp=10 um, w=1
+        g/L, C0=0.8 mol/L, 15 points)``; the fields themselves are SI."""
+        parts = [f"T={self.temperature - 273.15:.4g} degC",
+                 f"N={self.stirrer_speed * 60:.4g} rpm",
+                 f"dp={self.particle_diameter * 1e6:.4g} um",
+                 f"w={self.catalyst_loading:.4g} g/L",
+                 f"C0={self.initial_concentration / 1000:.4g} mol/L"]
+        if self.group:
+            parts.append(f"group={self.group!r}")
+        return f"Run({self.id!r}, {', '.join(parts)}, {self.n_obs} points)"
 
     @property
     def n_obs(self) -> int:
@@ -205,13 +218,14 @@ def comparison_sets(study: Study, factor: str, *, rtol: float = 0.01) -> list[Co
     """Sets of runs that differ only in ``factor``: the classic transport tests.
 
     Runs are grouped by the other factors (equal within ``rtol`` relative); a group that holds
-    at least two distinct values of ``factor`` is a set.
+    at least two distinct values of ``factor`` is a set. Concentration-profile runs with a
+    single point or with points only at t = 0 carry no rate and are kept out.
     """
     if factor not in FACTORS:
         raise StudyError(f"factor '{factor}' is not one of {list(FACTORS)}")
     others = [f for f in FACTORS if f != factor]
     sets: list[ComparisonSet] = []
-    used: set[str] = set()
+    used: set[str] = set(uninformative_runs(study.runs))  # no rate information: kept out
     for r in study.runs:
         if r.id in used:
             continue

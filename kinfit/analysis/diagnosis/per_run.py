@@ -20,7 +20,8 @@ from numpy.typing import NDArray
 from kinfit.errors import KinfitError, StudyError
 from kinfit.model.compiled import Model
 from kinfit.model.simulation import run_table
-from kinfit.physics.criteria import REGIMES, Thresholds
+from kinfit.physics.criteria import Thresholds
+from kinfit.physics.resistances import REGIMES
 
 __all__ = ["PerRunResult", "posterior_matrix", "run_diagnostics", "CRITERIA", "N_DRAWS"]
 

@@ -134,7 +134,7 @@ def decorrelating_reference_temperature(
     References
     ----------
     Schwaab, M. & Pinto, J. C. (2007), Chem. Eng. Sci. 62, 2750-2764 (the result); the weighted
-    form is derived in REFERENCES.md section 7.
+    form is derived in Schwaab & Pinto 2007.
 
     Examples
     --------
