@@ -68,7 +68,7 @@ class SampleOptions:
     progress: bool = True
     n_predictive: int = 200
     stop_rule: str = "converged"
-    moves: str = "de"
+    moves: str = "de-laplace"
 
 
 def _fitted_theta(model: Model, fit: FitResult) -> np.ndarray:

@@ -157,8 +157,10 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
                    help="stop when the chain exceeds this many autocorrelation times")
     p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
-    p.add_argument("--moves", choices=("de", "stretch"), default="de",
-                   help="proposal: differential-evolution move (default) or stretch move")
+    p.add_argument("--moves", choices=("de-laplace", "de", "stretch"), default="de-laplace",
+                   help="proposal: differential-evolution move mixed with an independence move "
+                        "from the fit's curvature (default), differential evolution alone, or "
+                        "the stretch move")
     p.add_argument("--require-converged", action="store_true",
                    help="exit 1 when the chain has not converged")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
