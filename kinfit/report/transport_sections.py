@@ -274,7 +274,7 @@ def posterior_section(rb: ReportBuilder) -> Section | None:
         keys = ("walkers", "steps", "burn_in", "thin", "seed", "moves", "move_note",
                 "stopped_by", "tau_multiple")
         blocks.append(Facts(tuple((k.replace("_", " "), str(sampler[k])) for k in keys
-                                  if k in sampler)))
+                                  if sampler.get(k) not in (None, ""))))
     if conv:
         ok = bool(conv.get("converged"))
         reasons = "; ".join(map(str, conv.get("reasons") or []))
