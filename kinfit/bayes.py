@@ -2,7 +2,8 @@
 started at the least-squares optimum, posterior predictive bands per run, and per-run derived
 quantities (eta, Weisz-Prater, Carberry) with the probability of each regime.
 
-Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv,
+Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv.gz (or
+posterior_draws.csv on request),
 posterior_bands.csv, posterior.nc (NetCDF through ArviZ where available) and the sampler
 checkpoint posterior_checkpoint.npz (kept, so ``--resume`` continues it).
 """
@@ -23,7 +24,7 @@ from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
-from kinfit.outputs import manifest, write_frame_atomic, write_json_atomic
+from kinfit.outputs import DRAWS_FILES, manifest, write_frame_atomic, write_json_atomic
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import Study
@@ -57,6 +58,9 @@ class SampleOptions:
         The sampler's stopping rule (see :func:`kinfit.estimate.sampling.sample_problem`).
     moves : str
         The sampler's proposal moves (same reference).
+    draws_csv : bool
+        Write the draws as plain ``posterior_draws.csv`` instead of the compressed
+        ``posterior_draws.csv.gz``.
     """
 
     walkers: int | None = None
@@ -69,6 +73,7 @@ class SampleOptions:
     n_predictive: int = 200
     stop_rule: str = "converged"
     moves: str = "de-laplace"
+    draws_csv: bool = False
 
 
 def _fitted_theta(model: Model, fit: FitResult) -> np.ndarray:
@@ -145,7 +150,10 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         frame = pd.DataFrame({"run": np.asarray(model.run_ids)[gr], "time [s]": gt,
                               "q05": fine.q05, "q50": fine.q50, "q95": fine.q95})
     write_frame_atomic(out / "posterior_bands.csv", frame)
-    post.to_csv(out / "posterior_draws.csv")
+    # the draws table: compressed by default, plain CSV on request; one of the two only
+    keep, drop = DRAWS_FILES[::-1] if options.draws_csv else DRAWS_FILES
+    write_frame_atomic(out / keep, post.draws_frame())
+    (out / drop).unlink(missing_ok=True)
     try:
         post.to_netcdf(out / "posterior.nc")
     except (ImportError, ValueError, OSError):

@@ -130,10 +130,12 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     out = prepare_out_dir(args.out or fit_dir)
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
-                            progress=not args.quiet, moves=args.moves)
+                            progress=not args.quiet, moves=args.moves,
+                            draws_csv=args.draws_csv)
     post, content = sample_study(study, fit, out, options, argv=sys.argv)
     print(post.report())
-    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
+    draws = "posterior_draws.csv" if args.draws_csv else "posterior_draws.csv.gz"
+    print(f"\nwrote {out / 'posterior.json'}, {draws}, posterior_bands.csv")
     if post.interrupted:
         print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
               file=sys.stderr)
@@ -163,6 +165,9 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
                         "the stretch move")
     p.add_argument("--require-converged", action="store_true",
                    help="exit 1 when the chain has not converged")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the draws as plain posterior_draws.csv (default: compressed "
+                        "posterior_draws.csv.gz)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -188,8 +193,16 @@ def _cmd_run(args: argparse.Namespace) -> int:
     print(campaign_summary(study))
     out = prepare_out_dir(args.out)
     step("fitting all runs jointly (least squares, profile-likelihood intervals)")
-    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
-                                   progress=not args.quiet), argv=sys.argv)
+    from kinfit.parallel import available_workers, make_executor
+
+    # the profile sides (and multistart refits) go to a local pool over the available cores
+    # unless told otherwise (--workers 1: in this process)
+    workers = args.workers if args.workers is not None else min(available_workers(), 4)
+    with make_executor(workers=None if args.scheduler else workers,
+                       scheduler=args.scheduler) as executor:
+        result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed,
+                                       profile=True, progress=not args.quiet,
+                                       executor=executor), argv=sys.argv)
     result.save(out)
     print(result.report())
     code = EXIT_OK if result.converged else EXIT_FAILED
@@ -197,7 +210,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         step(f"sampling the posterior ({args.steps} steps at most)")
         post, _ = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
-            progress=not args.quiet), argv=sys.argv)
+            progress=not args.quiet, draws_csv=args.draws_csv), argv=sys.argv)
         print(post.report())
         if post.interrupted:
             # what was sampled is checkpointed; the report is still written from it
@@ -225,6 +238,11 @@ def _run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--steps", type=int, default=10000,
                    help="posterior step cap; sampling stops earlier once converged (0: no "
                         "sampling; default 10000)")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the posterior draws as plain CSV (default: compressed CSV)")
+    from kinfit.parallel import add_parallel_arguments
+
+    add_parallel_arguments(p)
     p.add_argument("--quiet", action="store_true", help="no progress bars")
 
 

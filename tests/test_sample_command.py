@@ -93,7 +93,7 @@ def test_per_run_derived_quantities_and_regime_probabilities(short_run):
 def test_draws_and_bands_files(short_run):
     _, out = short_run
     post = json.loads((out / "posterior.json").read_text())
-    draws = pd.read_csv(out / "posterior_draws.csv")
+    draws = pd.read_csv(out / "posterior_draws.csv.gz")
     kept = (post["sampler"]["steps"] - post["sampler"]["burn_in"]) * post["sampler"]["walkers"]
     assert len(draws) == kept
     assert set(post["parameters"]) <= set(draws.columns)
@@ -122,8 +122,8 @@ def test_resume_gives_the_chain_asked_for(fitted, tmp_path):
     assert resumed["sampler"]["steps"] == 300 and resumed["sampler"]["resumed_from"] == 150
     straight = tmp_path / "straight"
     assert _sample(fitted, straight, "--steps", "300", "--seed", "9") == 0
-    a = pd.read_csv(first / "posterior_draws.csv")
-    b = pd.read_csv(straight / "posterior_draws.csv")
+    a = pd.read_csv(first / "posterior_draws.csv.gz")
+    b = pd.read_csv(straight / "posterior_draws.csv.gz")
     pd.testing.assert_frame_equal(a, b)
 
 
