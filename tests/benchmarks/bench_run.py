@@ -6,7 +6,7 @@ CPU time is the process time of this process and of every child process it waite
 process pool's workers), so a shared machine's load does not inflate it the way wall time is
 inflated. The stages are timed by wrapping the API functions the command calls.
 
-Run from the repository root:  python3 tests/benchmarks/bench_run.py [--repeat N]
+Run from the repository root:  python3 tests/benchmarks/bench_run.py [--repeat N] [--workers N]
 Last line: run_cpu_seconds=<cpu> sample_steps=<n> outputs_mb=<mb>
 (targets of issue 16: cpu <= 20 s on a 2-core machine, n <= 1000, mb <= 8; the smallest CPU time
 over the repeats is reported, the stages of that repeat are printed above it)
@@ -81,13 +81,14 @@ def folder_mb(folder: Path) -> float:
     return sum(p.stat().st_size for p in folder.rglob("*") if p.is_file()) / 1e6
 
 
-def one_run() -> tuple[float, float, int, float, dict[str, float], list[tuple[str, float]]]:
+def one_run(extra: list[str]) -> tuple[float, float, int, float, dict[str, float],
+                                       list[tuple[str, float]]]:
     with tempfile.TemporaryDirectory() as tmp:
         out = Path(tmp) / "demo"
         log = io.StringIO()
         c0, w0 = cpu_seconds(), time.perf_counter()
         with Stages() as stages, contextlib.redirect_stdout(log):
-            code = kinfit_main(["run", str(DEMO), "--out", str(out), "--quiet"])
+            code = kinfit_main(["run", str(DEMO), "--out", str(out), "--quiet", *extra])
         cpu, wall = cpu_seconds() - c0, time.perf_counter() - w0
         if code != 0:
             print(log.getvalue())
@@ -101,10 +102,13 @@ def one_run() -> tuple[float, float, int, float, dict[str, float], list[tuple[st
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=1, help="runs; the fastest is reported")
+    parser.add_argument("--workers", default=None,
+                        help="passed to kinfit run (default: kinfit run's own choice)")
     args = parser.parse_args()
+    extra = [] if args.workers is None else ["--workers", str(args.workers)]
     best = None
     for i in range(args.repeat):
-        cpu, wall, steps, mb, stages, files = one_run()
+        cpu, wall, steps, mb, stages, files = one_run(extra)
         print(f"repeat {i + 1}: cpu {cpu:.1f} s, wall {wall:.1f} s, {steps} steps, {mb:.1f} MB "
               "(" + ", ".join(f"{k} {v:.1f} s" for k, v in stages.items()) + ")", flush=True)
         if best is None or cpu < best[0]:
