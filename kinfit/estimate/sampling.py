@@ -519,6 +519,16 @@ class _Run:
             return False
         return bool(np.all(np.minimum(ess_bulk(kept), ess_tail(kept)) >= rule.ess_min))
 
+    def _projected_length(self, rule: _StopRule, chunk: int, max_steps: int) -> int:
+        """Where the chain is expected to stop: the length the autocorrelation rule asks for
+        (at least the next check), rounded up to a check, at most the cap."""
+        tau = autocorr_time(self.chain())
+        need = self.n_steps + chunk
+        if np.all(np.isfinite(tau)):
+            need = max(need, int(math.ceil(rule.tau_multiple * float(np.max(tau)))))
+        need = int(math.ceil(need / chunk) * chunk)
+        return min(max_steps, need)
+
     def go(self, *, max_steps: int, chunk: int, rule: _StopRule, progress: bool) -> str:
         """Sample chunk by chunk; returns why it stopped."""
         n0 = self.n_steps
@@ -526,7 +536,9 @@ class _Run:
             return "max_steps"
         if n0 > 0 and n0 % chunk == 0 and self._should_stop(rule):
             return rule.kind
-        bar = _progress_bar(progress, max_steps, n0)
+        # the bar counts to the next convergence check, then to the length the autocorrelation
+        # time asks for (tau_multiple x tau), not to the step cap
+        bar = _progress_bar(progress, min(max_steps, n0 + chunk - n0 % chunk), n0)
         try:
             while self.n_steps < max_steps:
                 n = min(chunk - self.n_steps % chunk, max_steps - self.n_steps)
@@ -540,6 +552,9 @@ class _Run:
                 self.save()
                 if self._should_stop(rule):
                     return rule.kind
+                if bar is not None:
+                    bar.total = self._projected_length(rule, chunk, max_steps)
+                    bar.refresh()
             return "max_steps"
         except KeyboardInterrupt:
             self.interrupted = True
