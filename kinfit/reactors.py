@@ -15,6 +15,7 @@ integrand is nearly constant (exactly so at first order), so few panels reach 1e
 from __future__ import annotations
 
 from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -222,7 +223,7 @@ def batch_profiles_surface(
 
 
 def _invert_time(g: Array, u: Array, grid: BatchGrid, times: Array, run_index: NDArray[np.int_]
-                 ) -> tuple[Array, Array, tuple[Array, Array, NDArray[np.int_], Array, Array]]:
+                 ) -> tuple[Array, Array, tuple[Any, Any, Any, Array, Any]]:
     """From dt/d(-u) at the grid points (m, R, K), the grid coordinate u at the observation
     times (m, n) and dt/d(-u) there; also (mi, ri, panel j, tau, beyond-grid mask) to evaluate
     other panel polynomials at the same places."""

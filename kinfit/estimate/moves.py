@@ -60,7 +60,7 @@ class StudentProposal:
 
     @property
     def chol(self) -> NDArray[np.float64]:
-        return np.linalg.cholesky(self.cov)
+        return np.asarray(np.linalg.cholesky(self.cov), dtype=float)
 
     def logpdf(self, x: NDArray[np.float64]) -> NDArray[np.float64]:
         """Log density of each row of ``x`` (normalised)."""

@@ -77,6 +77,7 @@ def _move_plan(target: LogPosterior, x0: NDArray[np.float64], width: NDArray[np.
     note of what the moves are; no proposal, and the reason, when the curvature fails."""
     if kind != "de-laplace":
         return None, ""
+    proposal: StudentProposal | None
     if stored is not None:
         if stored.get("proposal") is None:
             return None, str(stored.get("move_note", ""))

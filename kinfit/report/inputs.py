@@ -243,8 +243,9 @@ def load_inputs(study: Study | str | Path, fit_dir: str | Path) -> ReportInputs:
     posterior = draws = bands = diagnosis = None
     if (fit_dir / "posterior.json").is_file():
         posterior = _read_json(fit_dir / "posterior.json")
-    if draws_file(fit_dir) is not None:
-        draws = _read_csv(draws_file(fit_dir), ())
+    found = draws_file(fit_dir)
+    if found is not None:
+        draws = _read_csv(found, ())
     if (fit_dir / "posterior_bands.csv").is_file():
         bands = _read_csv(fit_dir / "posterior_bands.csv", ("run", "time [s]", "q05", "q95"))
         bands = bands.assign(run=bands["run"].astype(str))
