@@ -3,8 +3,8 @@ started at the least-squares optimum, posterior predictive bands per run, and pe
 quantities (eta, Weisz-Prater, Carberry) with the probability of each regime.
 
 Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv.gz (or
-posterior_draws.csv on request),
-posterior_bands.csv, posterior.nc (NetCDF through ArviZ where available) and the sampler
+posterior_draws.csv on request), posterior_bands.csv, posterior.nc (NetCDF-4 with ArviZ's
+groups) and the sampler
 checkpoint posterior_checkpoint.npz (kept, so ``--resume`` continues it).
 """
 
@@ -24,6 +24,7 @@ from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
+from kinfit.model_checks import posterior_adequacy
 from kinfit.outputs import DRAWS_FILES, manifest, write_frame_atomic, write_json_atomic
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
@@ -154,10 +155,7 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
     keep, drop = DRAWS_FILES[::-1] if options.draws_csv else DRAWS_FILES
     write_frame_atomic(out / keep, post.draws_frame())
     (out / drop).unlink(missing_ok=True)
-    try:
-        post.to_netcdf(out / "posterior.nc")
-    except (ImportError, ValueError, OSError):
-        pass
+    post.to_netcdf(out / "posterior.nc")  # NetCDF-4, ArviZ's groups (h5netcdf is declared)
     pick = rng.choice(post.n_draws, size=min(options.n_predictive // 2 or 1, post.n_draws),
                       replace=False)
     derived = posterior_run_summaries(model, np.asarray(post.draws)[pick][:, : post.n_model])
@@ -174,6 +172,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         "runs": derived,
         "predictive": {"band": "central 90 % of the mean response", "draws": bands.n_draws,
                        "failed": bands.n_failed},
+        "adequacy": posterior_adequacy(model, study, post, fit.runs, n_draws=options.n_predictive,
+                                       rng=rng),
         "manifest": manifest(files=study.files, seed=options.seed, argv=argv),
     }
     del diag

@@ -36,6 +36,11 @@ def _cmd_check(args: argparse.Namespace) -> int:
     spec = main_spec(study)  # the model choices and the parameter table must fit together
     print(campaign_summary(study))
     print(f"\nmodel: {spec.label}; parameters {', '.join(spec.parameter_names)}")
+    from kinfit.simulate import transport_scaling_warning
+
+    warning = transport_scaling_warning(study, spec)
+    if warning:
+        print(warning)
     print("study is valid")
     return EXIT_OK
 
@@ -83,6 +88,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                      candidates=args.compare, argv=sys.argv)
     result.save(out)
     print(result.report())
+    _print_adequacy(result.fit.get("adequacy"))
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
     boot = result.extras.get("bootstrap") or {}
     if boot.get("interrupted"):
@@ -91,6 +97,23 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         return EXIT_INTERRUPTED
     if not result.converged:
         print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
+        return EXIT_FAILED
+    return _adequacy_exit(args, result.fit.get("adequacy"))
+
+
+def _print_adequacy(adequacy: Any) -> None:
+    from kinfit.model_checks import adequacy_lines
+
+    lines = adequacy_lines(adequacy)
+    if lines:
+        print("\n" + "\n".join(lines))
+
+
+def _adequacy_exit(args: argparse.Namespace, adequacy: Any) -> int:
+    """EXIT_FAILED when --require-adequate was given and an adequacy test failed."""
+    if getattr(args, "require_adequate", False) and not (adequacy or {}).get("adequate"):
+        print(f"kinfit: the model is not adequate: {(adequacy or {}).get('message', '')}",
+              file=sys.stderr)
         return EXIT_FAILED
     return EXIT_OK
 
@@ -114,6 +137,8 @@ def _fit_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--max-nfev", type=int, default=None, metavar="N",
                    help="cap on function evaluations of the optimiser")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")
 
 
 def _cmd_sample(args: argparse.Namespace) -> int:
@@ -205,13 +230,15 @@ def _cmd_run(args: argparse.Namespace) -> int:
                                        executor=executor), argv=sys.argv)
     result.save(out)
     print(result.report())
+    _print_adequacy(result.fit.get("adequacy"))
     code = EXIT_OK if result.converged else EXIT_FAILED
     if args.steps > 0:
         step(f"sampling the posterior ({args.steps} steps at most)")
-        post, _ = sample_study(study, result, out, SampleOptions(
+        post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
             progress=not args.quiet, draws_csv=args.draws_csv), argv=sys.argv)
         print(post.report())
+        _print_adequacy(content.get("adequacy"))
         if post.interrupted:
             # what was sampled is checkpointed; the report is still written from it
             code = EXIT_INTERRUPTED
@@ -227,6 +254,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
               f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
               f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
               file=sys.stderr)
+    if code == EXIT_OK:
+        code = _adequacy_exit(args, result.fit.get("adequacy"))
     return code
 
 
@@ -244,6 +273,8 @@ def _run_arguments(p: argparse.ArgumentParser) -> None:
 
     add_parallel_arguments(p)
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")
 
 
 def _lazy(module: str, function: str) -> Callable[[argparse.Namespace], int]:

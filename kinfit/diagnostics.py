@@ -51,13 +51,10 @@ SOURCES = {
     "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                  "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
                  "apparent first order",
-    "regime": "resistances in series at the run's initial conditions: film 1/(kc a_m), "
-              "reaction 1/k1, pore (1/eta - 1)/k1; the share above one half names the regime "
-              "(kinfit results contract)",
     "next_runs": "root find over stirrer speed and particle diameter with the fitted film law "
                  "and pellet model for Ca < 0.05/|n| and Psi below its limit",
     "carberry_times_order": THRESHOLD_SOURCES["carberry"],
-    "weisz_prater_radius": THRESHOLD_SOURCES["weisz_prater"],
+    "weisz_prater_eta": THRESHOLD_SOURCES["weisz_prater"],
     "alpha": "significance level of the model-free tests (0.05, common practice)",
 }
 
@@ -178,8 +175,9 @@ class Diagnosis:
                          "are in diagnosis.json (runs.*.intervals)")
         th = self.thresholds
         lines.append(f"   thresholds: Carberry < {th['carberry']:.3g} (0.05/|n|), Weisz-Prater "
-                     f"< {th['weisz_prater']:.3g} (Psi_R < {th['weisz_prater_radius']:g} in the "
-                     f"L = Vp/Sp form), Mears < {th['mears']:g}, eta >= "
+                     f"< {th['weisz_prater']:.3g} (L = Vp/Sp; Psi_R < "
+                     f"{th['weisz_prater_radius']:.3g} with R = dp/2), Mears < {th['mears']:.3g}, "
+                     f"eta >= "
                      f"{th['effectiveness_factor']:g}")
         lines.append("   intrinsic runs: " + (", ".join(self.intrinsic_runs) if self.intrinsic_runs
                                               else "none"))
@@ -272,12 +270,14 @@ def _threshold_block(thresholds: Thresholds, limits: Mapping[str, float], alpha:
     return {
         **limits,
         "carberry_times_order": thresholds.carberry,
-        "weisz_prater_radius": thresholds.weisz_prater_radius,
+        "weisz_prater_eta": thresholds.weisz_prater_eta,
         "geometry": geometry,
         "alpha": alpha,
-        "note": "carberry = carberry_times_order/|n| for the campaign's median order; "
-                "weisz_prater is the limit in the L = Vp/Sp normalisation, "
-                "weisz_prater_radius (L/R)^2 with R = dp/2",
+        "note": "carberry = carberry_times_order/|n| with each run's local order (the value "
+                "here is at the campaign's median order; runs.*.thresholds hold each run's); "
+                "weisz_prater is the limit in the L = Vp/Sp normalisation at which the "
+                "first-order eta of the geometry is weisz_prater_eta, weisz_prater_radius "
+                "the same limit with R = dp/2; mears uses R = dp/2 and the particle density",
     }
 
 
@@ -303,7 +303,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         A folder where ``kinfit sample`` wrote ``posterior_draws.csv``; its draws are used when
         ``posterior`` is not given (nothing happens when the file is absent).
     thresholds : Thresholds, optional
-        Criteria limits (default: Ca < 0.05/|n|, Psi_R < 0.3, Mears < 0.15, eta >= 0.95).
+        Criteria limits (default: Ca < 0.05/|n|, Psi_L at first-order eta 0.95, Mears 0.05 R/L,
+        eta >= 0.95).
     alpha : float
         Significance level of the model-free tests.
     n_draws : int
@@ -414,10 +415,13 @@ def add_diagnose_arguments(parser: argparse.ArgumentParser) -> None:
                         help="significance level of the model-free tests (default 0.05)")
     parser.add_argument("--carberry", type=float, default=0.05, metavar="LIMIT",
                         help="Carberry limit times |n| (default 0.05: Ca < 0.05/|n|)")
-    parser.add_argument("--weisz-prater", type=float, default=0.3, metavar="LIMIT",
-                        help="Weisz-Prater limit with R = dp/2 (default 0.3)")
+    parser.add_argument("--weisz-prater", type=float, default=None, metavar="LIMIT",
+                        help="Weisz-Prater limit with R = dp/2 for every shape (default: the "
+                             "value at which the first-order eta of the geometry is 0.95, "
+                             "0.767 for a sphere)")
     parser.add_argument("--mears", type=float, default=0.15, metavar="LIMIT",
-                        help="Mears limit (default 0.15)")
+                        help="Mears limit for a sphere, R = dp/2 (default 0.15; other shapes "
+                             "scale by (R/L)/3 for the same rate error)")
     parser.add_argument("--min-effectiveness", type=float, default=0.95, metavar="ETA",
                         help="smallest effectiveness factor counted as kinetic (default 0.95)")
     parser.add_argument("--max-speed", default="3000 rpm", metavar="SPEED",
@@ -501,7 +505,8 @@ def run_diagnose_command(args: argparse.Namespace) -> int:
     study = load_study(args.study)
     thresholds = Thresholds(
         carberry=_positive("carberry", args.carberry),
-        weisz_prater_radius=_positive("weisz-prater", args.weisz_prater),
+        weisz_prater_radius=(None if args.weisz_prater is None
+                             else _positive("weisz-prater", args.weisz_prater)),
         mears=_positive("mears", args.mears),
         effectiveness=_positive("min-effectiveness", args.min_effectiveness),
     )

@@ -23,6 +23,7 @@ from kinfit.estimate.uncertainty import (
 )
 from kinfit.identifiability import identifiability_warnings
 from kinfit.model import Model, ModelSpec
+from kinfit.model_checks import fit_adequacy
 from kinfit.outputs import manifest
 from kinfit.results import FitResult
 from kinfit.simulate import point_table, run_table
@@ -102,6 +103,7 @@ def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
         "particle_density": spec.particle_density,
         "reactor": spec.reactor,
         "error_model": study.error_model,
+        "temperature_scaling": spec.scaling.describe(spec.film.name),
         "equations": {
             "rate": "r = k(T) (Cs/C_ref)^n, k(T) = k_ref exp(-Ea/R (1/T - 1/T_ref))"
             if law.name == "power" else f"rate law '{law.name}'",
@@ -193,6 +195,7 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
         "n_penalised": int(est.n_penalised), "penalty_reasons": list(est.penalty_reasons),
         "information_criteria": "Gaussian likelihood with the error scale estimated: "
         "-2 ln L = n [ln(2 pi SSE/n) + 1] (constant error); k = parameters + error scales",
+        "adequacy": fit_adequacy(model, study, est, runs, weights=problem.weights),
     }
     if prof is not None and prof.better_optimum:
         fit_block["message"] = (f"{est.message}; profiling found a lower SSE than the fit "

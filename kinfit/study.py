@@ -569,7 +569,7 @@ SECTION_KEYS: dict[str, frozenset[str]] = {
     "study": frozenset({"name", "description", "author", "date", "notes"}),
     "data": frozenset({"runs", "observations", "tolerance"}),
     "catalyst": frozenset({"geometry", "particle_density", "porosity", "name", "notes"}),
-    "pellet": frozenset({"diffusivity", "molecular_diffusivity"}),
+    "pellet": frozenset({"diffusivity", "molecular_diffusivity", "temperature_scaling"}),
     "error": frozenset({"model"}),
     "fit": frozenset({"compare"}),
     "fluid": frozenset({"solvent", "viscosity", "density", "molar_mass", "association_factor",
@@ -731,6 +731,15 @@ def load_study(path: str | Path) -> Study:
                           f"{path.name} [error]", "constant")
     fit = _section(doc, "fit", path, False)
     fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
+    # transport scales with the liquid's viscosity by default when the study names its liquid
+    default_scaling = "viscosity" if fluid.get("solvent") else "none"
+    for sec, sec_name in ((pellet, "pellet"), (film, "film")):
+        sec["temperature_scaling"] = _choice(sec, "temperature_scaling", ("viscosity", "none"),
+                                             f"{path.name} [{sec_name}]", default_scaling)
+        if sec["temperature_scaling"] == "viscosity" and not fluid:
+            raise StudyError(f"{path.name} [{sec_name}]: temperature_scaling = \"viscosity\" "
+                             "needs the liquid's viscosity: add a [fluid] section (e.g. solvent "
+                             "= \"water\"), or set temperature_scaling = \"none\"")
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))

@@ -36,10 +36,13 @@ def test_hand_calculation_sphere_first_order():
     assert res["mears"] == pytest.approx(3 * 1.0 * res["carberry"], rel=1e-12)  # 3 n Ca
     assert res["weisz_prater_radius"] == pytest.approx(0.0850126, rel=1e-6)
     assert res["weisz_prater"] == pytest.approx(res["weisz_prater_radius"] / 9, rel=1e-12)
-    # published limits: Ca < 0.05/n, Psi_R < 0.3 (Psi_L < 0.3/9), Mears < 0.15
+    # limits for a 5 % rate error: Ca < 0.05/n (Carberry 1976), Mears < 0.15 for a sphere
+    # (Mears 1971), Psi_R < 0.767 (first-order sphere eta = 0.95, from the closed form of
+    # Thiele 1939), Psi_L = Psi_R/9
     assert res["thresholds"]["carberry"] == pytest.approx(0.05)
-    assert res["thresholds"]["weisz_prater"] == pytest.approx(0.3 / 9)
-    assert res["thresholds"]["weisz_prater_radius"] == pytest.approx(0.3)
+    assert res["thresholds"]["weisz_prater_radius"] == pytest.approx(0.7671, abs=2e-4)
+    assert res["thresholds"]["weisz_prater"] == pytest.approx(
+        res["thresholds"]["weisz_prater_radius"] / 9)
     assert res["thresholds"]["mears"] == pytest.approx(0.15)
     assert res["intrinsic"] is True and res["verdict"].startswith("intrinsic")
     # Weisz-Prater number equals eta Phi^2 for first order, L normalisation (Weisz & Prater
@@ -192,3 +195,23 @@ def test_report_text_lists_every_criterion():
     for word in ("Carberry", "Mears", "Weisz-Prater", "effectiveness factor", "Thiele modulus",
                  "verdict"):
         assert word in text
+
+
+def test_nothing_assessed_is_said_so_not_kinetic():
+    # neither kc nor De given: no resistance share and no regime can be stated (kinfit's
+    # results contract: a quantity not assessed is null, never 0 % or "kinetic")
+    res = criteria_from_measurement(rate=0.02, particle_diameter=75e-6, particle_density=1500.0,
+                                    bulk_concentration=500.0)
+    assert res["regime"] is None and res["controlling"] is None
+    assert res["shares"] == {"film": None, "pore": None, "reaction": None}
+    text = format_criteria(res)
+    assert "not assessed" in text and "kinetic" not in text and "0 %" not in text
+    json.dumps(res)  # None values serialise as null
+
+
+def test_film_only_assessed_leaves_the_regime_open():
+    # kc given, De not: the pore resistance is unknown, so is every share
+    res = criteria_from_measurement(rate=0.02, particle_diameter=75e-6, particle_density=1500.0,
+                                    bulk_concentration=500.0, film_coefficient=1e-4)
+    assert res["regime"] is None and res["resistances"]["pore"] is None
+    assert res["resistances"]["film"] == pytest.approx(1 / (1e-4 * 6 / (1500 * 75e-6)))

@@ -110,7 +110,7 @@ def test_first_order_small_modulus_coefficient(geometry, c):
 def test_first_order_sphere_small_modulus_against_mpmath():
     # Numerical trap of REFERENCES.md section 1: (1/phi)[coth 3phi - 1/(3phi)] cancels for
     # small phi; compare with 50-digit arithmetic (mpmath, a general-purpose library)
-    mpmath = pytest.importorskip("mpmath")
+    import mpmath  # a declared test dependency: missing is a failure
     mpmath.mp.dps = 50
     for phi in (1e-8, 1e-6, 1e-4, 1e-3, 0.01, 0.033, 0.034, 0.1, 1.0):
         x = 3 * mpmath.mpf(phi)
@@ -305,14 +305,18 @@ def test_power_law_properties(geometry):
 
 @pytest.mark.slow
 def test_table_file_matches_a_fresh_build():
-    # the shipped kinfit/data/power_law_eta.npz must be what the code builds
-    if not _pellet_table.TABLE_FILE.exists():
-        pytest.skip("no pre-built table file")
+    # the shipped kinfit/data/power_law_eta.npz (package data: its absence is a failure) must be
+    # what the code builds. Every field is a logarithm (ln eta, ln eta Phi, ln Phi/Phi_c), so an
+    # absolute difference is a relative one in eta. The nodes come from DOP853 runs at rtol
+    # 1e-12 over long trajectories, whose last digits differ between CPUs and libm builds
+    # (measured up to 2.3e-9 near ln eta = -4 on another x86-64 machine); the interpolated eta
+    # is stated good to 5e-6 relative (_pellet_table docstring), so node values that agree to
+    # 5e-8, 1 % of that, give the same table for every use.
     with np.load(_pellet_table.TABLE_FILE) as data:
         for geometry, a in SHAPES.items():
             fresh = _pellet_phase.grid_values(a)
             for field, val in fresh.items():
-                assert np.allclose(data[f"{geometry}/{field}"], val, rtol=0, atol=1e-11)
+                assert np.allclose(data[f"{geometry}/{field}"], val, rtol=0, atol=5e-8)
 
 
 # --------------------------------------------------------------------------------------------

@@ -314,7 +314,8 @@ def test_sections_follow_the_data(full_report):
     rep = full_report.report
     assert full_report.notes == ()  # no figure or section failed quietly
     keys = [s.key for s in rep.sections]
-    assert keys == ["summary", "campaign", "model", "parameters", "fit", "identifiability",
+    assert keys == ["summary", "campaign", "model", "parameters", "fit", "adequacy",
+                    "identifiability",
                     "comparison", "transport", "posterior", "validity", "cautions",
                     "reproducibility"]
     md = full_report.markdown.read_text(encoding="utf-8")
@@ -557,3 +558,40 @@ def test_every_equation_renders():
         assert root.tag == "svg" and all(el.get("id", f"t{i}-").startswith(f"t{i}-")
                                          for el in root.iter())
     assert equation_svg(r"\frac{a}{", prefix="bad") is None
+
+
+def test_posterior_summaries_render_to_their_mcse_digits(fitted, tmp_path):
+    # HTML, Markdown and LaTeX print a posterior median and interval to the digits its Monte
+    # Carlo standard error supports (last digit: the power of ten at or above 2 MCSE, at least
+    # 2 significant digits; tests/test_sampling.py checks the rule), while posterior.json and
+    # parameters.csv keep full precision. Hand-worked: sigma median 0.0123456, MCSE 3e-5
+    # -> 2 MCSE = 6e-5 -> last digit 1e-4 -> "0.0123"; q05 0.0111111, MCSE 4e-6 -> "0.01111";
+    # q95 0.0135791, MCSE 4e-4 -> "0.014"; HDI ends 0.0109876 (MCSE 2e-4) -> "0.011" and
+    # 0.0138642 (MCSE 1e-6) -> "0.01386". k_ref: median 0.140045 with MCSE 2.3e-4 -> "0.140".
+    from kinfit.report import build_report
+
+    path, fit_dir = fitted
+    fit_copy = tmp_path / "fit"
+    shutil.copytree(fit_dir, fit_copy)
+    write_posterior_files(path, fit_copy)
+    post = json.loads((fit_copy / "posterior.json").read_text())
+    post["parameters"]["sigma"].update(
+        median=0.0123456, q05=0.0111111, q95=0.0135791, hdi94=[0.0109876, 0.0138642],
+        mcse={"median": 3e-5, "q05": 4e-6, "q95": 4e-4, "hdi94": [2e-4, 1e-6]})
+    post["parameters"]["k_ref"].update(
+        median=0.140045, q05=0.13603, q95=0.14412,
+        mcse={"median": 2.3e-4, "q05": 4e-4, "q95": 4e-5, "hdi94": [None, None]})
+    (fit_copy / "posterior.json").write_text(json.dumps(post))
+    res = build_report(path, fit_copy, tmp_path / "report", argv=["kinfit", "report", "x"])
+    out = res.out_dir
+    for name in ("report.md", "report.html"):
+        text = (out / name).read_text()
+        assert "0.0123" in text and "0.01235" not in text, name
+        assert "[0.01111, 0.014]" in text, name       # parameter table and posterior summary
+        assert "[0.011, 0.01386]" in text, name       # HDI 94 %
+        assert "0.140" in text and "0.1400" not in text, name
+        assert "[0.136, 0.1441]" in text, name
+    tex = (out / "parameters.tex").read_text()
+    assert "$0.140$ & [$0.136$, $0.1441$]" in tex
+    params = pd.read_csv(out / "parameters.csv").set_index("parameter")
+    assert params.loc["sigma", "posterior_median"] == 0.0123456  # full precision kept

@@ -105,6 +105,24 @@ def test_draws_and_bands_files(short_run):
     assert draws["k_ref"].median() == pytest.approx(post["parameters"]["k_ref"]["median"])
 
 
+def test_netcdf_file_holds_the_draws(short_run):
+    # posterior.nc as users get it: NetCDF-4 with ArviZ's groups (walkers as chains, kept steps
+    # as draws), the same numbers as posterior_draws.csv (CSV floats are written round-trip)
+    import xarray as xr
+
+    _, out = short_run
+    draws = pd.read_csv(out / "posterior_draws.csv.gz").sort_values(["walker", "step"])
+    with xr.open_datatree(out / "posterior.nc", engine="h5netcdf") as tree:
+        names = list(tree["posterior"].data_vars)
+        assert set(json.loads((out / "posterior.json").read_text())["parameters"]) <= set(names)
+        for name in names:
+            np.testing.assert_array_equal(tree["posterior"][name].values.reshape(-1),
+                                          draws[name].to_numpy())
+        np.testing.assert_array_equal(tree["sample_stats"]["lp"].values.reshape(-1),
+                                      draws["log_prob"].to_numpy())
+        assert json.loads(tree["posterior"].attrs["kinfit_settings"])["seed"] == 3
+
+
 def test_require_converged_exits_1_and_says_why(fitted, tmp_path, capsys):
     code = _sample(fitted, tmp_path, "--steps", "100", "--seed", "1", "--require-converged")
     assert code == 1

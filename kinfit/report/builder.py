@@ -2,7 +2,7 @@
 into the sections of the report once; :mod:`kinfit.report.render` writes them as Markdown and
 HTML. Sections appear as their data exist; nothing here fits or samples.
 
-Order: summary, campaign, model, parameters, fit to the data, correlation and identifiability,
+Order: summary, campaign, model, parameters, fit to the data, model adequacy, correlation and identifiability,
 model comparison, transport diagnosis, posterior, limits of validity, cautions, reproducibility.
 """
 
@@ -19,6 +19,7 @@ import pandas as pd
 from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
 from kinfit.report import figures as fg
+from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -34,6 +35,8 @@ from kinfit.report.content import (
     factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
@@ -119,7 +122,8 @@ class ReportBuilder:
     def build(self) -> Report:
         """All sections, the CSV tables and the LaTeX table."""
         makers = [self._summary, self._campaign, lambda: model_section(self), self._parameters,
-                  self._fit, self._identifiability, self._comparison,
+                  self._fit, lambda: adequacy_section(self), self._identifiability,
+                  self._comparison,
                   lambda: transport_section(self), lambda: posterior_section(self),
                   self._validity, self._cautions, self._reproducibility]
         sections = [s for s in (m() for m in makers) if s is not None]
@@ -155,6 +159,7 @@ class ReportBuilder:
             unit = "" if unit == "–" else f" {unit}"
             items.append(f"{n} = {fmt(p.get('estimate'))}{unit}, 95 % interval {ci} "
                          f"({p.get('ci_method') or 'linear'})")
+        blocks.extend(adequacy_summary(f, self.inp.posterior))
         blocks.append(Heading("Estimates"))
         blocks.append(Items(tuple(items)))
         intrinsic = [rid for rid, r in res.runs.items() if r.get("intrinsic")]
@@ -294,8 +299,10 @@ class ReportBuilder:
                     row.append(fmt_interval(p.get(k), 3) if p.get("vary", True) else "–")
                     tone.append(None)
             if post:
-                row += [fmt(q.get("median")), fmt_interval([q.get("q05"), q.get("q95")], 3)
-                        if q else "–"]
+                se = q.get("mcse") or {}
+                row += [fmt_mc(q.get("median"), se.get("median")),
+                        fmt_interval_mc([q.get("q05"), q.get("q95")],
+                                        [se.get("q05"), se.get("q95")], 3) if q else "–"]
                 tone += [None, None]
             rows.append(row)
             tones.append(tone)

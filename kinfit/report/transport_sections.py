@@ -7,6 +7,7 @@ exist; every optional field is read with a default.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -28,6 +29,8 @@ from kinfit.report.content import (
     factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
@@ -74,9 +77,10 @@ def transport_section(rb: ReportBuilder) -> Section:
         rows.append(row)
         tones.append(tone)
     blocks: list[Any] = [
-        Text("Criteria at each run's initial conditions, from the fitted model. The "
-             "regime names the resistance whose share of the total exceeds one half "
-             "(\"mixed\" when none does)."),
+        Text("Criteria at each run's initial conditions, from the fitted model. A run is "
+             "\"kinetic\" only when the reaction share is at least 0.95 (its observed rate "
+             "within 5 % of the intrinsic rate at bulk conditions); \"film\" or \"pore\" "
+             "when that resistance's share exceeds one half; \"mixed\" otherwise."),
         rb.table("Per-run transport criteria and regime; green meets the threshold, red "
                    "fails it.", header, rows, tones=tones,
                    numeric=(False, False) + (True,) * 8 + (False,), csv="runs.csv"),
@@ -262,6 +266,15 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
                                  numeric=(True, True, True, False)))
     return blocks
 
+def _fixed(value: Any, decimals: int) -> str:
+    """A number with a fixed count of decimals (R-hat); ``–`` when missing."""
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        return "–"
+    return f"{f:.{decimals}f}" if math.isfinite(f) else "–"
+
+
 def posterior_section(rb: ReportBuilder) -> Section | None:
     """The posterior: sampler settings, convergence, summary, corner plot and traces."""
     post, draws = rb.inp.posterior, rb.inp.draws
@@ -280,21 +293,32 @@ def posterior_section(rb: ReportBuilder) -> Section | None:
         reasons = "; ".join(map(str, conv.get("reasons") or []))
         blocks.append(Text(("The chain converged" if ok else "The chain did NOT converge")
                            + (f": {reasons}" if reasons else "") +
-                           (f" (acceptance fraction {fmt(conv.get('acceptance_fraction'), 3)})"
+                           (f" (acceptance fraction {fmt(conv.get('acceptance_fraction'), 2)})"
                             if conv.get("acceptance_fraction") is not None else "") + ".",
                            "ok" if ok else "warning"))
         tau = conv.get("tau") or {}
         if tau:
-            blocks.append(Facts(tuple((f"τ {k}", fmt(v, 3)) for k, v in tau.items())))
+            blocks.append(Facts(tuple((f"τ {k}", fmt(v, 2)) for k, v in tau.items())))
     summary = (post or {}).get("parameters") or {}
     if summary:
-        rows = [(n, fg.pretty_unit(rb.units.get(n, "")), fmt(q.get("median")),
-                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi94")),
-                 fmt(q.get("rhat"), 4), fmt(q.get("ess"), 3)) for n, q in summary.items()
-                if isinstance(q, Mapping)]
+        # printed to the digits the Monte Carlo standard error supports (full precision stays
+        # in posterior.json); R-hat to 3 decimals, ESS to 2 digits: both are estimates that
+        # move from run to run by more than the digits dropped
+        rows = []
+        for n, q in summary.items():
+            if not isinstance(q, Mapping):
+                continue
+            se = q.get("mcse") or {}
+            rows.append((n, fg.pretty_unit(rb.units.get(n, "")),
+                         fmt_mc(q.get("median"), se.get("median")),
+                         fmt_interval_mc([q.get("q05"), q.get("q95")],
+                                         [se.get("q05"), se.get("q95")]),
+                         fmt_interval_mc(q.get("hdi94"), se.get("hdi94")),
+                         _fixed(q.get("rhat"), 3), fmt(q.get("ess"), 2)))
         blocks.append(rb.table("Posterior summary: median, central 90 % interval, 94 % "
                                  "highest-density interval, R-hat and effective sample "
-                                 "size.", ("quantity", "unit", "median", "5–95 %",
+                                 "size, each to the digits its Monte Carlo standard error "
+                                 "supports.", ("quantity", "unit", "median", "5–95 %",
                                            "HDI 94 %", "R-hat", "ESS"), rows,
                                  numeric=(False, False) + (True,) * 5))
     if draws is not None:
