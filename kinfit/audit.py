@@ -175,7 +175,7 @@ class AuditResult:
         from kinfit.outputs import to_plain
 
         lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
-        return to_plain({"kinfit_audit": 1, "claim_file": str(self.path), "title": self.title,
+        return to_plain({"kinfit_audit": 1, "claim_file": Path(self.path).name, "title": self.title,
                          "claims": [c.to_dict() for c in self.claims],
                          "thresholds": self.thresholds,
                          "sources": {**SOURCES, **LH_SOURCES} if lh else SOURCES,
@@ -600,7 +600,7 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
                         "film_activation_energy_allowance": FILM_EA_ALLOWANCE,
                         "pore_activation_energy_ratio": list(PORE_EA_RATIO),
                         "order_tolerance": ORDER_TOLERANCE, "level": LEVEL},
-                       manifest(files=files, argv=None))
+                       manifest(files=files, argv=None, base=cf.path))
 
 
 # ------------------------------------------------------------------------------ command line
@@ -615,10 +615,10 @@ def add_audit_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_audit_command(args: argparse.Namespace) -> int:
     """Run ``kinfit audit``; returns the exit code."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
 
     result = audit_claims(args.claim)
-    result = replace(result, manifest={**result.manifest, "command": list(sys.argv)})
+    result = replace(result, manifest={**result.manifest, "command": recorded_command(sys.argv)})
     out = prepare_out_dir(args.out)
     result.save(out)
     for c in result.claims:

@@ -146,6 +146,9 @@ def markdown(result: Any, sources: Mapping[str, str]) -> str:
         lines += ["### Signatures", ""] + [f"- {s['text']}" for s in c.signatures.values()]
         if c.notes:
             lines += ["", "Notes:", ""] + [f"- {n}" for n in c.notes]
+    from kinfit.outputs import cautions_markdown
+
+    lines += ["", *cautions_markdown()]
     lines += ["", "## Sources", ""] + [f"- {k}: {v}" for k, v in sources.items()]
     return "\n".join(lines) + "\n"
 

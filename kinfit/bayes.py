@@ -25,14 +25,26 @@ from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
 from kinfit.model_checks import posterior_adequacy
-from kinfit.outputs import DRAWS_FILES, manifest, write_frame_atomic, write_json_atomic
+from kinfit.outputs import (
+    DRAWS_FILES,
+    manifest,
+    recorded_path,
+    write_frame_atomic,
+    write_json_atomic,
+)
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import Study
 
-__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries"]
+__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries", "DEFAULT_SEED", "MAX_STEPS"]
 
 _DERIVED = ("effectiveness_factor", "thiele_modulus", "weisz_prater", "carberry", "mears")
+
+
+#: default seed of sampling (and of ``kinfit run``): same study, same chain
+DEFAULT_SEED = 20261201
+#: default step cap of sampling, as the README states
+MAX_STEPS = 10_000
 
 
 @dataclass(frozen=True)
@@ -50,6 +62,8 @@ class SampleOptions:
     tau_multiple : float
         Stop when the chain is longer than this multiple of the autocorrelation time.
     seed : int or None
+        Seed of the walkers' start and moves (default :data:`DEFAULT_SEED`, so that a
+        standalone ``kinfit sample`` is reproducible like ``kinfit run``; None draws one).
     resume : bool
         Continue from the checkpoint in the output folder.
     progress : bool
@@ -65,10 +79,10 @@ class SampleOptions:
     """
 
     walkers: int | None = None
-    max_steps: int = 20000
+    max_steps: int = MAX_STEPS
     chunk: int = 500
     tau_multiple: float = 50.0
-    seed: int | None = None
+    seed: int | None = DEFAULT_SEED
     resume: bool = False
     progress: bool = True
     n_predictive: int = 200
@@ -162,7 +176,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
     diag = post.diagnostics
     content = {
         "parameters": post.summary(),
-        "sampler": post.settings.to_dict(),
+        "sampler": {**post.settings.to_dict(), "checkpoint": recorded_path(
+            out / "posterior_checkpoint.npz", study.path)},
         "convergence": {
             "converged": bool(post.converged), "reasons": list(post.reasons),
             "verdict": post.verdict, "acceptance_fraction": float(post.acceptance_fraction),
@@ -174,7 +189,8 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
                        "failed": bands.n_failed},
         "adequacy": posterior_adequacy(model, study, post, fit.runs, n_draws=options.n_predictive,
                                        rng=rng),
-        "manifest": manifest(files=study.files, seed=options.seed, argv=argv),
+        "manifest": manifest(files=study.files, seed=options.seed, argv=argv,
+                             base=study.path),
     }
     del diag
     write_json_atomic(out / "posterior.json", content)

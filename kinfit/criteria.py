@@ -22,6 +22,9 @@ every geometry:
   n Ca (R/L) (derived: a_m = 1/(rho_p L)), that is 3 n Ca for a sphere, 2 n Ca for a cylinder
   and n Ca for a slab, so the limit 0.15 that Mears gave for spheres becomes 0.05 (R/L): 0.15,
   0.10 and 0.05, the same 5 % error as the Carberry limit.
+- Regime (kinfit's results contract): resistances in series per kg, film 1/(kc a_m), reaction
+  1/k1, pore (1/eta - 1)/k1 with k1 = r(Cs)/Cs; "kinetic" at a reaction share >= 0.95,
+  else the share above one half names the regime, otherwise "mixed".
 """
 
 from __future__ import annotations

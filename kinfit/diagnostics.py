@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
@@ -25,7 +26,7 @@ from kinfit.diagnose.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next
 from kinfit.diagnose.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.errors import StudyError
 from kinfit.model import Model
-from kinfit.outputs import draws_file
+from kinfit.outputs import draws_file, recorded_path
 from kinfit.results import FitResult
 from kinfit.study import Study
 
@@ -45,9 +46,10 @@ SOURCES = {
                            "smooth curve against one per level (Bates & Watts 1988; Draper & "
                            "Smith 1998); cubic regression spline chosen by BIC (Schwarz 1978)",
     "model_free_rates": "one-way analysis of variance (Fisher 1925)",
-    "model_free_logic": "no change with stirrer speed: film negligible, says nothing of eta; "
-                        "no change with particle size at fixed speed: film negligible and "
-                        "eta = 1 (common practice)",
+    "model_free_logic": "a rate the stirrer speed does not change rules out a film limit and "
+                        "leaves eta open; a rate the particle size does not change, at one "
+                        "speed, rules out film and pore limits alike (eta = 1) (common "
+                        "practice)",
     "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                  "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
                  "apparent first order",
@@ -133,6 +135,24 @@ class Diagnosis:
             "units": _UNITS,
         })
 
+    def to_frame(self) -> pd.DataFrame:
+        """One row per run: the criteria, the resistance shares, the regime and whether the run
+        counts as intrinsic (SI; a rate in mol/(kg s), kc in m/s)."""
+        rows = []
+        for rid, r in self.runs.items():
+            shares = r.get("shares") or {}
+            rows.append({
+                "run": rid, "regime": r.get("regime"),
+                "thiele_modulus": r.get("thiele_modulus"),
+                "effectiveness_factor": r.get("effectiveness_factor"),
+                "weisz_prater": r.get("weisz_prater"), "mears": r.get("mears"),
+                "carberry": r.get("carberry"),
+                **{f"share_{k}": v for k, v in shares.items()},
+                "observed_rate [mol/(kg*s)]": r.get("observed_rate"),
+                "kc [m/s]": r.get("kc"), "intrinsic": rid in self.intrinsic_runs,
+            })
+        return pd.DataFrame(rows)
+
     def save(self, folder: str | Path) -> Path:
         """Write ``folder/diagnosis.json`` atomically; returns its path."""
         from kinfit.outputs import prepare_out_dir, write_json_atomic
@@ -205,7 +225,7 @@ class Diagnosis:
         for rec in self.next_runs:
             sp = "any" if rec.stirrer_speed is None else f">= {rec.stirrer_speed * 60:.4g} rpm"
             dp = "none found" if rec.particle_diameter is None else (
-                f"<= {rec.particle_diameter * 1e6:.4g} um")
+                f"<= {rec.particle_diameter * 1e6:.4g} µm")
             lines.append(f"   {rec.temperature:.5g} K: stirrer speed {sp}, particles {dp}")
             lines.append(f"     {rec.note}")
         if self.notes:
@@ -326,11 +346,11 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     from kinfit.fitting import FitOptions, fit_model, main_spec
 
     if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
-        raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
-                         f"{alpha!r} instead.")
+        raise StudyError(f"the significance level (--alpha, alpha) must be a number in (0, 1). "
+                         f"Got {alpha!r} instead.")
     if not isinstance(n_draws, int) or n_draws < 1:
-        raise StudyError(f"the 'n_draws' option of diagnose() must be an int >= 1. Got "
-                         f"{n_draws!r} instead.")
+        raise StudyError(f"the number of draws (--n-draws, n_draws) must be a whole number "
+                         f">= 1. Got {n_draws!r} instead.")
     for name, rng in (("speed_range", speed_range), ("diameter_range", diameter_range)):
         if not (len(rng) == 2 and 0.0 < rng[0] < rng[1] and np.isfinite(rng[1])):
             raise StudyError(f"the '{name}' option of diagnose() must be (low, high) with "
@@ -349,7 +369,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         if fit_result.study and fit_result.study != study.name:
             notes.append(f"the fit is of study '{fit_result.study}', not '{study.name}'")
         inputs = fit_result.manifest.get("inputs", {}) if fit_result.manifest else {}
-        changed = [Path(k).name for k, v in study.files.items()
+        recorded = {recorded_path(k, study.path): v for k, v in study.files.items()}
+        changed = [Path(k).name for k, v in recorded.items()
                    if k in inputs and inputs[k].get("sha256") not in (None, v)]
         if changed:
             notes.append(f"input file(s) {changed} changed since the fit; refit before relying "
@@ -362,7 +383,7 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         path = draws_file(posterior_dir)
         if path is not None:
             posterior = read_draws(path)
-            notes.append(f"posterior draws from {path}")
+            notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)
     per_run = run_diagnostics(model, theta, thresholds=thresholds, draws=draws, n_draws=n_draws,
                               seed=seed)

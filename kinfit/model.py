@@ -15,8 +15,9 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.candidates import rate_law_options
 from kinfit.criteria import Criteria, Thresholds, compute_criteria
-from kinfit.errors import ModelError, StudyError
+from kinfit.errors import ModelError, StudyError, did_you_mean
 from kinfit.estimate.problem import ErrorModel, Problem, Space
 from kinfit.parameters import ParameterTable
 from kinfit.reactors import (
@@ -114,6 +115,9 @@ class ModelSpec:
         kin = dict(study.kinetics)
         law_name = rate_law or kin["rate_law"]
         options = {k: v for k, v in kin.items() if k not in ("rate_law",)}
+        if law_name != kin["rate_law"]:  # a candidate law takes only the options it knows
+            accepted = rate_law_options(law_name)
+            options = {k: v for k, v in options.items() if k in accepted}
         law = make_rate_law(law_name, **options)
         film_sec = dict(study.film)
         study_film = film_sec.pop("model", "agitation")
@@ -147,7 +151,7 @@ class ModelSpec:
             reactor="differential" if study.kind == "rate" else "batch",
             parameters=table, porosity=study.catalyst.get("porosity"),
             molecular_diffusivity=study.pellet.get("molecular_diffusivity"),
-            fluid=fluid, label=label or f"{law_name}+{film_name}+{mode}",
+            fluid=fluid, label=label or f"{law_name}/{film_name}/{mode}",
             scaling=TransportScaling(
                 pellet=study.pellet.get("temperature_scaling", "none") if mode != "none"
                 else "none",
@@ -171,7 +175,8 @@ class ModelSpec:
         extra = sorted(have - needed - set(ERROR_SCALE_NAMES))
         if extra:
             raise StudyError(
-                f"unknown parameter '{extra[0]}' for the model ({self.label}); the model uses "
+                f"unknown parameter '{extra[0]}'{did_you_mean(extra[0], needed)} for the model "
+                f"({self.label}); the model uses "
                 f"{sorted(needed)} (and error scales {list(ERROR_SCALE_NAMES)})"
             )
         if self.pellet == "tortuosity" and (not self.porosity or not (

@@ -4,7 +4,7 @@ campaigns and make synthetic data, and by the fit to report per-run criteria."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -13,6 +13,7 @@ from numpy.typing import NDArray
 
 from kinfit.criteria import Thresholds
 from kinfit.model import Model, ModelSpec
+from kinfit.parameters import ParameterTable
 from kinfit.study import Study
 
 __all__ = ["Simulation", "simulate", "run_table", "point_table"]
@@ -86,8 +87,14 @@ def point_table(model: Model, theta_row: NDArray[np.float64], predicted: NDArray
 
 def simulate(study: Study, *, spec: ModelSpec | None = None,
              thresholds: Thresholds | None = None) -> Simulation:
-    """Predict every run at the study's parameter values (``value`` of each parameter)."""
-    spec = spec or ModelSpec.from_study(study)
+    """Predict every run at the study's parameter values (``value`` of each parameter),
+    whatever their ``vary`` flags say: simulating at known values needs nothing to vary."""
+    if spec is None:
+        # the model's columns are its varying parameters; marking all of them varying makes
+        # the column vector the full set of study values, which is what is predicted at
+        table = ParameterTable([replace(study.parameters[n], vary=True)
+                                for n in study.parameters])
+        spec = ModelSpec.from_study(study, parameters=table)
     model = Model(spec, study)
     theta = model.x0
     pred = model.predict(theta[None, :])[0]

@@ -74,7 +74,7 @@ def test_unassessed_resistance_is_not_counted_as_zero():
 def test_carberry_identity_and_mears_relation():
     # steady film: Ca = 1 - Cs/Cb exactly (derived from kc a (Cb - Cs) = r_obs; Carberry 1976);
     # with the particle density the Mears number equals 3 n Ca for spheres (Mears 1971,
-    # REFERENCES.md §3.2, derived)
+    # Carberry 1976, derived)
     dp, rho, n = 1e-4, 1500.0, 1.5
     a_m = external_area("sphere", dp, rho)
     kc = 3e-5
@@ -92,7 +92,7 @@ def test_carberry_identity_and_mears_relation():
 
 def test_carberry_threshold_scales_with_order():
     # Ca < 0.05/|n| for a 5 % rate error (Kapteijn & Moulijn, Handbook of Heterogeneous
-    # Catalysis, 2008; REFERENCES.md §3.2): the rate deficit 1 - (1 - Ca)^n at the threshold
+    # Catalysis, 2008; Carberry 1976; Mears 1971): the rate deficit 1 - (1 - Ca)^n at the threshold
     for n, deficit in [(1.0, 0.05), (2.0, 0.04938), (0.5, 0.05132)]:
         ca = Thresholds().to_dict("sphere", n)["carberry"]
         assert 1 - (1 - ca) ** n == pytest.approx(deficit, abs=5e-5)
@@ -170,7 +170,7 @@ def test_carberry_limit_per_run_from_the_local_order():
 
 def test_film_only_series_resistance_first_order():
     # first order behind a film: 1/k_obs = 1/(kc a_m) + 1/k (resistances in series;
-    # Satterfield 1970; REFERENCES.md §1, overall factor with eta = 1)
+    # Satterfield 1970; Thiele 1939; Aris 1957, overall factor with eta = 1)
     k_ref, kfa = 0.3, 2e-4  # k in mol/(kg s) at C_ref = 1000 mol/m^3 -> k1 = 3e-4 m^3/(kg s)
     Cb = np.array([50.0, 500.0, 1000.0])
     obs, _ = _state(k_ref, 1.0, kfa, Cb)

@@ -203,7 +203,7 @@ def _eta_sphere_radius(phi):
 @pytest.mark.parametrize(("phi_500", "ratio"), [(0.1, 0.99932), (1.0, 0.93947), (3.0, 0.72305),
                                                  (20.0, 0.52599), (100.0, 0.50499)])
 def test_apparent_activation_energy_halves_in_strong_pore_diffusion(phi_500, ratio):
-    # REFERENCES.md section 2 check values (sphere, first order, E = 100 kJ/mol, De
+    # check values computed from the closed form (Thiele 1939; Weisz & Prater 1954) (sphere, first order, E = 100 kJ/mol, De
     # independent of T; Satterfield 1970; Weisz & Prater 1954): E_app/E at phi_R(500 K).
     # The tabulated numbers are the Arrhenius secant between 500 and 501 K (they are
     # reproduced to all five digits that way; the local slope at phi_R = 1 is 0.94074)
@@ -302,7 +302,7 @@ def test_film_campaign_labels_and_model_free_conclusions(film_campaign):
 
 
 def test_speed_without_effect_but_size_with_one(tmp_path):
-    # the classic trap (REFERENCES.md section 3, experimental diagnostics): a film coefficient
+    # the classic trap (common practice): a film coefficient
     # that does not change with agitation (Sh -> 2 regime, kc ~ 1/dp; invented) shows no speed
     # effect although the film limits; particle size does show it
     rows = _grid((70,), (300, 1200), (30, 300))
@@ -311,7 +311,7 @@ def test_speed_without_effect_but_size_with_one(tmp_path):
     speed = [t for t in res.tests if t.factor == "stirrer_speed"]
     size = [t for t in res.tests if t.factor == "particle_diameter"]
     assert speed and not any(t.different for t in speed)
-    assert all("says nothing about pore diffusion" in t.conclusion for t in speed)
+    assert all("leaves the pores untested" in t.conclusion for t in speed)
     assert size and all(t.different and t.direction == "slower at higher" for t in size)
     assert all("holds only if the film coefficient does change" in t.conclusion for t in speed)
 

@@ -477,7 +477,7 @@ def test_combined_error_model_fit() -> None:
 
 
 def test_statistics_convention() -> None:
-    """-2 lnL = n [ln(2 pi S / n) + 1] for the constant model, k = p + 1 (REFERENCES.md §7)."""
+    """-2 lnL = n [ln(2 pi S / n) + 1] for the constant model, k = p + 1 (Akaike 1974; common practice)."""
     y = np.array([1.0, 2.0, 4.0, 3.0, 5.0])
     f = np.array([1.2, 2.1, 3.5, 3.2, 4.9])
     st = fit_statistics(y, f, n_params=2)

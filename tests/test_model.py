@@ -83,7 +83,7 @@ def test_eta_at_most_one(tmp_path):
 
 def test_first_order_series_resistance(tmp_path):
     # first order: 1/k_obs = 1/(kc a_m) + 1/(eta k), with eta from the closed form
-    # (Satterfield 1970; REFERENCES.md §1, overall factor)
+    # (Satterfield 1970; Thiele 1939; Aris 1957, overall factor)
     m = make_model(tmp_path, order=1.0)
     Cb = np.full(m.n_obs, 300.0)
     st, kc = m.point_states(m.x0, Cb)
@@ -124,7 +124,7 @@ def test_identical_profiles_at_two_speeds_mean_negligible_film(tmp_path):
 
 
 def test_results_do_not_depend_on_input_units(tmp_path):
-    # invariance (STYLE.md 14c): the same campaign written in other units predicts the same
+    # invariance (common practice): the same campaign written in other units predicts the same
     m1 = make_model(tmp_path)
     d2 = tmp_path / "k"
     d2.mkdir()

@@ -143,7 +143,7 @@ def _rpm(v: float) -> str:
 
 
 def _um(v: float) -> str:
-    return f"{v * 1e6:.4g} um"
+    return f"{v * 1e6:.4g} µm"
 
 
 def next_runs(model: Model, theta: Array, *, thresholds: Thresholds | None = None,

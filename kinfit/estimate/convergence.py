@@ -39,8 +39,9 @@ RHAT_MAX = 1.01
 #: Smallest acceptable bulk and tail ESS (Vehtari et al. 2021 recommend at least 100 per chain
 #: for 4 chains, i.e. 400 in total).
 ESS_MIN = 400.0
-#: Probability of the highest-density interval reported (ArviZ's default, 94 %).
-HDI_PROB = 0.94
+#: Probability of the highest-density interval reported: 90 %, the same probability as the
+#: central 5-95 % interval beside it, so the two can be compared (results contract: hdi90).
+HDI_PROB = 0.90
 #: A mean acceptance fraction below this is mentioned in the verdict (Foreman-Mackey, Hogg,
 #: Lang & Goodman 2013, PASP 125, 306, advise 0.2-0.5; a note, not a failed test, because the
 #: stretch move in one to three dimensions accepts more than 0.5 without harm).
@@ -322,14 +323,14 @@ def diagnose(
     if bad:
         worst = int(np.nanargmax(rhat)) if np.any(np.isfinite(rhat)) else 0
         reasons.append(
-            f"R-hat of {bad} is not below {rhat_max} (worst '{names[worst]}' "
+            f"R-hat of {', '.join(bad)} is not below {rhat_max} (worst '{names[worst]}' "
             f"{rhat[worst]:.3f}): the walkers disagree; run longer or start nearer the optimum."
         )
     ess = np.minimum(eb, et)
     low = [n for n, e in zip(names, ess, strict=True) if not e >= ess_min]
     if low:
         reasons.append(
-            f"effective sample size of {low} is below {ess_min:g} (smallest "
+            f"effective sample size of {', '.join(low)} is below {ess_min:g} (smallest "
             f"{np.nanmin(ess) if np.any(np.isfinite(ess)) else float('nan'):.0f}): too few "
             "independent draws; raise max_steps."
         )

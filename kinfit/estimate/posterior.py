@@ -243,11 +243,11 @@ class Posterior:
 
     # -- summaries -----------------------------------------------------------------------------
     def summary(self) -> dict[str, dict[str, Any]]:
-        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi94`` [lo, hi], ``rhat``, ``ess``
+        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi90`` [lo, hi], ``rhat``, ``ess``
         (bulk), plus ``mean``, ``sd``, ``ess_tail`` and ``mcse``; plain floats (None for NaN).
 
         ``mcse`` holds the Monte Carlo standard errors of ``median``, ``q05``, ``q95`` and of
-        the two ``hdi94`` ends (each end as the quantile at the share of draws below it), by
+        the two ``hdi90`` ends (each end as the quantile at the share of draws below it), by
         :func:`~kinfit.estimate.convergence.mcse_quantile`. Values keep full precision here;
         printed summaries round to the digits the MCSE supports
         (:func:`~kinfit.estimate.convergence.supported_digits`).
@@ -277,7 +277,7 @@ class Posterior:
                 "median": _num(q[1, j]),
                 "q05": _num(q[0, j]),
                 "q95": _num(q[2, j]),
-                "hdi94": [_num(h[j, 0]), _num(h[j, 1])],
+                "hdi90": [_num(h[j, 0]), _num(h[j, 1])],
                 "rhat": _num(self.rhat[j]),
                 "ess": _num(self.ess[j]),
                 "mean": _num(mean[j]),
@@ -285,7 +285,7 @@ class Posterior:
                 "ess_tail": _num(self.ess_tail[j]),
                 "mcse": {
                     **{key: _num(v[j]) for key, v in se.items()},
-                    "hdi94": [_num(se_hdi[j, 0]), _num(se_hdi[j, 1])],
+                    "hdi90": [_num(se_hdi[j, 0]), _num(se_hdi[j, 1])],
                 },
             }
         return out
@@ -309,8 +309,8 @@ class Posterior:
 
         rows = []
         for name, s in self.summary().items():
-            row = {k: v for k, v in s.items() if k not in ("hdi94", "mcse")}
-            row["hdi94_lo"], row["hdi94_hi"] = s["hdi94"]
+            row = {k: v for k, v in s.items() if k not in ("hdi90", "mcse")}
+            row["hdi90_lo"], row["hdi90_hi"] = s["hdi90"]
             for key in ("median", "q05", "q95"):
                 row[f"mcse_{key}"] = s["mcse"][key]
             rows.append({"name": name, **row})

@@ -12,8 +12,9 @@ from typing import Any
 
 import pandas as pd
 
-__all__ = ["Text", "Items", "Facts", "Heading", "Equation", "Table", "FigureBlock", "Code",
-           "Section", "Report", "fmt", "fmt_interval", "fmt_mc", "fmt_interval_mc", "fmt_p", "TONES", "FACTOR_LABEL",
+__all__ = ["Text", "Items", "Details", "Facts", "Heading", "Equation", "Table", "FigureBlock",
+           "Code", "Section", "Report", "fmt", "fmt_interval", "fmt_mc", "fmt_interval_mc", "fmt_p",
+           "TONES", "FACTOR_LABEL",
            "CRITERIA_KEYS", "factor_text", "get_path"]
 
 #: tones a block or cell may carry; renderers style them (warning, good news, regime labels)
@@ -37,6 +38,15 @@ class Items:
     items: tuple[str, ...]
     tone: str = "plain"
     kind: str = "items"
+
+
+@dataclass(frozen=True)
+class Details:
+    """A list folded behind a one-line summary (HTML ``<details>``; a list in Markdown)."""
+
+    summary: str
+    items: tuple[str, ...]
+    kind: str = "details"
 
 
 @dataclass(frozen=True)

@@ -84,7 +84,7 @@ def model_section(rb: ReportBuilder) -> Section:
     ))]
     refs = []
     if opts.get("reference_temperature") is not None:
-        refs.append(("T_ref", f"{fmt(opts['reference_temperature'], 5)} K"))
+        refs.append(("T_ref", rb.temperature(opts["reference_temperature"])))
     if opts.get("reference_concentration") is not None:
         refs.append(("C_ref", f"{fmt(opts['reference_concentration'])} mol/m³"))
     spec_film = getattr(rb.inp.spec, "film", None)
