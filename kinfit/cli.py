@@ -165,13 +165,15 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     out = prepare_out_dir(args.out or fit_dir)
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
-                            progress=not args.quiet, moves=args.moves)
+                            progress=not args.quiet, moves=args.moves,
+                            draws_csv=args.draws_csv)
     try:
         post, content = sample_study(study, fit, out, options, argv=sys.argv)
     except StudyError as exc:
         raise StudyError(_option_words(str(exc))) from None
     print(post.report())
-    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
+    draws = "posterior_draws.csv" if args.draws_csv else "posterior_draws.csv.gz"
+    print(f"\nwrote {out / 'posterior.json'}, {draws}, posterior_bands.csv")
     if post.interrupted:
         print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
               file=sys.stderr)
@@ -211,10 +213,15 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--seed", type=int, default=DEFAULT_SEED,
                    help=f"seed (same seed, same chain; default {DEFAULT_SEED})")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
-    p.add_argument("--moves", choices=("de", "stretch"), default="de",
-                   help="proposal: differential-evolution move (default) or stretch move")
+    p.add_argument("--moves", choices=("de-laplace", "de", "stretch"), default="de-laplace",
+                   help="proposal: differential-evolution move mixed with an independence move "
+                        "from the fit's curvature (default), differential evolution alone, or "
+                        "the stretch move")
     p.add_argument("--require-converged", action="store_true",
                    help="exit 1 when the chain has not converged")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the draws as plain posterior_draws.csv (default: compressed "
+                        "posterior_draws.csv.gz)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -240,8 +247,16 @@ def _cmd_run(args: argparse.Namespace) -> int:
     print(campaign_summary(study))
     out = prepare_out_dir(args.out)
     step("fitting all runs jointly (least squares, profile-likelihood intervals)")
-    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
-                                   progress=not args.quiet), argv=sys.argv)
+    from kinfit.parallel import available_workers, make_executor
+
+    # the profile sides (and multistart refits) go to a local pool over the available cores
+    # unless told otherwise (--workers 1: in this process)
+    workers = args.workers if args.workers is not None else min(available_workers(), 4)
+    with make_executor(workers=None if args.scheduler else workers,
+                       scheduler=args.scheduler) as executor:
+        result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed,
+                                       profile=True, progress=not args.quiet,
+                                       executor=executor), argv=sys.argv)
     result.save(out)
     print(result.report())
     _print_adequacy(result.fit.get("adequacy"))
@@ -250,7 +265,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         step(f"sampling the posterior ({args.steps} steps at most)")
         post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
-            progress=not args.quiet), argv=sys.argv)
+            progress=not args.quiet, draws_csv=args.draws_csv), argv=sys.argv)
         print(post.report())
         _print_adequacy(content.get("adequacy"))
         if post.interrupted:
@@ -284,6 +299,11 @@ def _run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--steps", type=int, default=10000,
                    help="posterior step cap; sampling stops earlier once converged (0: no "
                         "sampling; default 10000)")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the posterior draws as plain CSV (default: compressed CSV)")
+    from kinfit.parallel import add_parallel_arguments
+
+    add_parallel_arguments(p)
     p.add_argument("--quiet", action="store_true", help="no progress bars")
     p.add_argument("--require-adequate", action="store_true",
                    help="exit 1 when a model-adequacy test fails")

@@ -26,7 +26,7 @@ from kinfit.diagnose.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next
 from kinfit.diagnose.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.errors import StudyError
 from kinfit.model import Model
-from kinfit.outputs import recorded_path
+from kinfit.outputs import draws_file, recorded_path
 from kinfit.results import FitResult
 from kinfit.study import Study
 
@@ -35,8 +35,9 @@ __all__ = ["Diagnosis", "diagnose", "model_for_fit", "read_draws", "add_diagnose
 
 Array = NDArray[np.float64]
 DIAGNOSIS_VERSION = 1
-#: the posterior draws table that ``kinfit sample`` writes into the fit folder
-DRAWS_FILE = "posterior_draws.csv"
+#: the posterior draws table that ``kinfit sample`` writes into the fit folder (compressed by
+#: default; the plain CSV on request, see :data:`kinfit.outputs.DRAWS_FILES`)
+DRAWS_FILE = "posterior_draws.csv.gz"
 
 #: where each part of the diagnosis comes from
 SOURCES = {
@@ -379,8 +380,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
                      f"iterate ({fit_result.fit.get('message', '')})")
     model, theta = model_for_fit(study, fit_result)
     if posterior is None and posterior_dir is not None:
-        path = Path(posterior_dir) / DRAWS_FILE
-        if path.is_file():
+        path = draws_file(posterior_dir)
+        if path is not None:
             posterior = read_draws(path)
             notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)

@@ -58,6 +58,7 @@ from kinfit.conditions import (  # noqa: F401 - re-exported: kinfit.predict is t
 from kinfit.criteria import REGIMES, Thresholds
 from kinfit.errors import KinfitError, RegimeWarning, StudyError
 from kinfit.model import Model
+from kinfit.outputs import draws_file
 from kinfit.results import FitResult
 from kinfit.study import FACTORS, Study
 from kinfit.suspension import suspension_check
@@ -420,7 +421,8 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     rng = np.random.default_rng(seed)
     draws, source = None, "covariance"
     if fit_dir is not None:
-        draws = posterior_draws(fitted, Path(fit_dir) / "posterior_draws.csv", n_draws, rng)
+        found = draws_file(fit_dir)
+        draws = None if found is None else posterior_draws(fitted, found, n_draws, rng)
         source = "posterior" if draws is not None else "covariance"
     if draws is None:
         draws = covariance_draws(fitted, n_draws, rng)

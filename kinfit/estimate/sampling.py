@@ -39,6 +39,9 @@ from kinfit.estimate.log_posterior import (
     scale_estimate,
     scale_values,
 )
+from kinfit.estimate.moves import WEIGHT as MOVE_WEIGHT
+from kinfit.estimate.moves import WIDEN as MOVE_WIDEN
+from kinfit.estimate.moves import StudentProposal, independence_move, laplace_proposal
 from kinfit.estimate.posterior import Posterior, SamplerSettings
 from kinfit.estimate.problem import Problem
 
@@ -47,20 +50,48 @@ __all__ = ["sample_problem", "STOP_RULES", "LogPosterior", "scale_estimate"]
 #: Stopping rules of :func:`sample_problem`.
 STOP_RULES = ("converged", "autocorrelation")
 
-#: Proposal moves of :func:`sample_problem`: emcee's differential-evolution move (DEMove;
-#: ter Braak 2006) or the affine-invariant stretch move (Goodman & Weare 2010; emcee's
-#: default). emcee's DESnookerMove is left out on purpose: on a 3-D standard normal (24
-#: walkers, 20000 steps, emcee 3.1.6) it gave standard deviations of 0.89 instead of 1
-#: (measured here; DEMove 0.998, stretch 1.00).
-MOVES = ("de", "stretch")
+#: Proposal moves of :func:`sample_problem`: ``"de-laplace"``, emcee's differential-evolution
+#: move (DEMove; ter Braak 2006) mixed half and half with an independence move from the
+#: Laplace approximation at the optimum (:mod:`kinfit.estimate.moves`); ``"de"``, DEMove alone;
+#: ``"stretch"``, the affine-invariant stretch move (Goodman & Weare 2010; emcee's default).
+#: emcee's DESnookerMove is left out on purpose: on a 3-D standard normal (24 walkers, 20000
+#: steps, emcee 3.1.6) it gave standard deviations of 0.89 instead of 1 (measured here; DEMove
+#: 0.998, stretch 1.00).
+MOVES = ("de-laplace", "de", "stretch")
 
 
-def _emcee_moves(kind: str) -> Any:
+def _emcee_moves(kind: str, proposal: StudentProposal | None = None) -> Any:
     import emcee
 
-    if kind == "de":
+    if kind == "de-laplace" and proposal is not None:
+        return [(emcee.moves.DEMove(), 1.0 - MOVE_WEIGHT),
+                (independence_move(proposal), MOVE_WEIGHT)]
+    if kind in ("de", "de-laplace"):
         return emcee.moves.DEMove()
     return emcee.moves.StretchMove()
+
+
+def _move_plan(target: LogPosterior, x0: NDArray[np.float64], width: NDArray[np.float64],
+               kind: str, stored: dict[str, Any] | None) -> tuple[StudentProposal | None, str]:
+    """The independence proposal of ``"de-laplace"`` (the checkpoint's when resuming) and a
+    note of what the moves are; no proposal, and the reason, when the curvature fails."""
+    if kind != "de-laplace":
+        return None, ""
+    proposal: StudentProposal | None
+    if stored is not None:
+        if stored.get("proposal") is None:
+            return None, str(stored.get("move_note", ""))
+        proposal = StudentProposal.from_dict(stored["proposal"])
+    else:
+        lo = np.full(target.ndim, -np.inf)
+        hi = np.full(target.ndim, np.inf)
+        lo[: target.p], hi[: target.p] = target.space.internal_bounds()
+        proposal, reason = laplace_proposal(target, target.to_internal(x0), lo, hi, width)
+        if proposal is None:
+            return None, f"DE alone: no independence move because {reason}"
+    return proposal, (f"DE {1 - MOVE_WEIGHT:.0%} mixed with an independence move "
+                      f"{MOVE_WEIGHT:.0%}: multivariate t (nu {proposal.nu:g}) centred on the "
+                      f"least-squares optimum, Laplace covariance x {MOVE_WIDEN:g}")
 
 
 def _int_option(name: str, value: object, low: int) -> int:
@@ -175,7 +206,7 @@ def sample_problem(
     rhat_max: float = RHAT_MAX,
     ess_min: float = ESS_MIN,
     stop_rule: str = "converged",
-    moves: str = "de",
+    moves: str = "de-laplace",
 ) -> Posterior:
     """Sample the posterior of a problem's parameters (and error scales) with emcee.
 
@@ -229,11 +260,15 @@ def sample_problem(
         (length, R-hat and ESS); ``"autocorrelation"`` once the length test alone passes
         (emcee's rule; R-hat over walkers then often lies near ``1 + tau / n_steps``, about
         1.02 at 50 tau, and the verdict may say "not converged").
-    moves : {"de", "stretch"}
-        Proposal (see :data:`MOVES`): ``"de"`` (default), emcee's differential-evolution
-        move; ``"stretch"``, the affine-invariant stretch move. DE's autocorrelation times are
-        a third to a quarter of the stretch move's on the demo campaign and on Gaussian
-        targets (measured; see DEVELOPERS.md), so it converges in fewer steps.
+    moves : {"de-laplace", "de", "stretch"}
+        Proposal (see :data:`MOVES`): ``"de-laplace"`` (default), emcee's
+        differential-evolution move mixed half and half with an independence move from the
+        Laplace approximation at ``start`` (:mod:`kinfit.estimate.moves`; DE alone, with the
+        reason in ``settings.move_note``, when the optimum is on a bound or the curvature is
+        not positive definite); ``"de"``, the differential-evolution move alone;
+        ``"stretch"``, the affine-invariant stretch move. DE's autocorrelation times are a
+        third to a quarter of the stretch move's on the demo campaign and on Gaussian targets,
+        and the mixed move's a fifth of DE's on the demo (measured; see DEVELOPERS.md).
 
     Returns
     -------
@@ -357,7 +392,11 @@ def sample_problem(
     seed = int(seq.entropy)  # type: ignore[arg-type]
     identity["seed"] = seed
     ball_seq, move_seq = seq.spawn(2)
-    run = _Run(target, identity, walkers, checkpoint)
+    proposal, move_note = _move_plan(target, x0, width, moves,
+                                     ckpt.settings if ckpt is not None else None)
+    identity["proposal"] = None if proposal is None else proposal.to_dict()
+    identity["move_note"] = move_note
+    run = _Run(target, identity, walkers, checkpoint, proposal)
     if ckpt is not None and ckpt.n_steps > 0:
         run.restore(ckpt, max_steps)
     else:
@@ -391,6 +430,7 @@ class _Run:
         identity: dict[str, Any],
         n_walkers: int,
         checkpoint: str | os.PathLike[str] | None,
+        proposal: StudentProposal | None = None,
     ) -> None:
         import emcee
 
@@ -399,7 +439,7 @@ class _Run:
         self.path = checkpoint
         self.sampler = emcee.EnsembleSampler(
             n_walkers, target.ndim, target, vectorize=True,
-            moves=_emcee_moves(str(identity.get("moves", "stretch"))),
+            moves=_emcee_moves(str(identity.get("moves", "stretch")), proposal),
         )
         self.prev_chain = np.empty((0, n_walkers, target.ndim))
         self.prev_lp = np.empty((0, n_walkers))
@@ -480,6 +520,16 @@ class _Run:
             return False
         return bool(np.all(np.minimum(ess_bulk(kept), ess_tail(kept)) >= rule.ess_min))
 
+    def _projected_length(self, rule: _StopRule, chunk: int, max_steps: int) -> int:
+        """Where the chain is expected to stop: the length the autocorrelation rule asks for
+        (at least the next check), rounded up to a check, at most the cap."""
+        tau = autocorr_time(self.chain())
+        need = self.n_steps + chunk
+        if np.all(np.isfinite(tau)):
+            need = max(need, int(math.ceil(rule.tau_multiple * float(np.max(tau)))))
+        need = int(math.ceil(need / chunk) * chunk)
+        return min(max_steps, need)
+
     def go(self, *, max_steps: int, chunk: int, rule: _StopRule, progress: bool) -> str:
         """Sample chunk by chunk; returns why it stopped."""
         n0 = self.n_steps
@@ -487,7 +537,9 @@ class _Run:
             return "max_steps"
         if n0 > 0 and n0 % chunk == 0 and self._should_stop(rule):
             return rule.kind
-        bar = _progress_bar(progress, max_steps, n0)
+        # the bar counts to the next convergence check, then to the length the autocorrelation
+        # time asks for (tau_multiple x tau), not to the step cap
+        bar = _progress_bar(progress, min(max_steps, n0 + chunk - n0 % chunk), n0)
         try:
             while self.n_steps < max_steps:
                 n = min(chunk - self.n_steps % chunk, max_steps - self.n_steps)
@@ -501,6 +553,9 @@ class _Run:
                 self.save()
                 if self._should_stop(rule):
                     return rule.kind
+                if bar is not None:
+                    bar.total = self._projected_length(rule, chunk, max_steps)
+                    bar.refresh()
             return "max_steps"
         except KeyboardInterrupt:
             self.interrupted = True
@@ -587,6 +642,7 @@ class _Run:
             resumed_from=int(resumed_from),
             stopped_by=stopped_by,
             moves=str(self.identity.get("moves", "stretch")),
+            move_note=str(self.identity.get("move_note", "")),
         )
         post = Posterior(
             names=self.target.names,
