@@ -20,7 +20,6 @@ from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
 from kinfit.outputs import CAUTIONS, recorded_command, recorded_path
 from kinfit.report import figures as fg
-from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -45,6 +44,7 @@ from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
 from kinfit.report.matrix import SetCell, set_matrix
+from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
 from kinfit.report.transport_sections import posterior_section, transport_section
 from kinfit.study import FACTORS, comparison_sets
 
