@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from kinfit.calculator import criteria_from_measurement
+from kinfit.calculator import criteria_from_measurement, format_criteria
 from kinfit.criteria import compute_criteria
 from kinfit.errors import SolverError, StudyError
-from kinfit.kinetics import ExpressionRate
+from kinfit.kinetics import ExpressionRate, ReversibleFirstOrder
 from kinfit.reactors import cstr_outlet
 from kinfit.transport.film import SlurryFilm, sherwood_sano
 from kinfit.transport.pellet import pellet_eta
@@ -116,6 +116,9 @@ def test_calculator_shares_against_an_independent_inversion():
     assert res["shares"]["pore"] == pytest.approx(pore / total, rel=1e-5)
     assert sum(res["shares"].values()) == pytest.approx(1.0, rel=1e-12)
     assert 0.05 < pore / total < 0.95 and 0.05 < film / total   # every term counts here
+    text = format_criteria(res)
+    assert (f"resistance shares: film {100 * film / total:.0f} %, pore {100 * pore / total:.0f} "
+            f"%, reaction {100 * react / total:.0f} %") in text
 
 
 def test_calculator_shares_without_a_pellet_model():
@@ -129,6 +132,7 @@ def test_calculator_shares_without_a_pellet_model():
     assert res["shares"]["film"] == pytest.approx(0.5, rel=1e-12)
     assert res["shares"]["reaction"] == pytest.approx(0.5, rel=1e-12)
     assert res["shares"]["pore"] is None
+    assert "resistance shares: film 50 %, pore n/a, reaction 50 %" in format_criteria(res)
 
 
 @pytest.mark.parametrize("ca", [1.0 + 1e-9, 1.02, 1.05, 1.099])
@@ -267,3 +271,55 @@ def test_pellet_single_failing_point_raises_solver_error():
     rate, drate = _second_order(np.array(50.0))
     with pytest.raises(SolverError, match=r"at 1 of 1 points.*first at point 0: Cs = 3 "):
         pellet_eta(rate, drate, np.array(3.0), 1e-9, 1e-3, "sphere", max_iter=1)
+
+
+# ---------------------------------------------------------------------------------------------
+# Reversible first order: the linear slope used to start the surface iteration
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("T", [300.0, 340.0])
+def test_reversible_first_order_slope(T):
+    # r = k [C - (C0 - C)/K]/C_ref is linear in C, so dr/dC = k (1 + 1/K)/C_ref (hand
+    # calculation); k by Arrhenius and K by van 't Hoff about T_ref = 300 K, R = N_A k_B =
+    # 8.31446261815324 J/(mol K) (exact, SI 2019 / CODATA 2018)
+    law = ReversibleFirstOrder(reference_temperature=300.0, reference_concentration=1000.0)
+    p = {"k_ref": 2.0, "activation_energy": 50e3, "equilibrium_constant": 3.0,
+         "reaction_enthalpy": -20e3}
+    R = 8.31446261815324
+    k = 2.0 * math.exp(-50e3 / R * (1.0 / T - 1.0 / 300.0))
+    K = 3.0 * math.exp(20e3 / R * (1.0 / T - 1.0 / 300.0))
+    slope = k * (1.0 + 1.0 / K) / 1000.0
+    assert float(law.linear_slope(T, p, C0=800.0)) == pytest.approx(slope, rel=1e-12)
+    assert float(law.drate_dC(123.0, T, p, C0=800.0)) == pytest.approx(slope, rel=1e-12)
+    # and the rate vanishes at C0/(1 + K), to rounding of its terms (about k C0/C_ref)
+    assert float(law.rate(800.0 / (1.0 + K), T, p, C0=800.0)) == pytest.approx(
+        0.0, abs=1e-12 * k * 800.0 / 1000.0)
+
+
+# ---------------------------------------------------------------------------------------------
+# Sphere, first order, small modulus: the series branch of ln eta and its slope
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("p", [0.004, 0.01, 0.02, 0.033])
+def test_first_order_sphere_series_branch_against_mpmath(p):
+    # eta = 3 (x coth x - 1)/x^2 with x = 3 Phi (Thiele 1939); ln eta and d ln eta/d ln Phi at
+    # 50 digits by mpmath (closed form and mpmath.diff). Below Phi = 1/30 kinfit uses the
+    # series to x^8; the first omitted term leaves about 5e-12 relative in the slope at
+    # Phi = 1/30 and less below, so 3e-11 is the check (a wrong series coefficient shows as
+    # >= 3e-10)
+    import mpmath as mp
+
+    from kinfit.transport._lh_table import first_order_log
+
+    mp.mp.dps = 50
+
+    def ln_eta(log_p):
+        x = 3 * mp.e**log_p
+        return mp.log(3 * (x * mp.coth(x) - 1) / x**2)
+
+    val, slope = first_order_log(np.array([p]), 2)
+    lp = mp.log(mp.mpf(p))
+    assert float(val[0]) == pytest.approx(float(ln_eta(lp)), rel=3e-11)
+    assert float(slope[0]) == pytest.approx(float(mp.diff(ln_eta, lp)), rel=3e-11)

@@ -55,7 +55,7 @@ ROOT = Path(__file__).resolve().parents[2]
 
 # ------------------------------------------------------------------------------------------
 # Targets: edit here when modules move. A module is named by its import name; the test files
-# beside it run for every mutant of that module (paths relative to the repository root).
+# beside it run for every mutant of that module (paths relative to the repository root, or pytest node ids).
 # ------------------------------------------------------------------------------------------
 GUARDS = ("tests/test_formula_guards.py",)
 
@@ -78,14 +78,51 @@ PHYSICS: dict[str, tuple[str, ...]] = {
 ESTIMATE: dict[str, tuple[str, ...]] = {
     "kinfit.estimate.least_squares": ("tests/test_estimate_core.py", "tests/test_nist_strd.py"),
     "kinfit.estimate.uncertainty": ("tests/test_estimate_core.py",),
-    "kinfit.estimate.sampling": ("tests/test_sampling.py",),
+    # the sampler tests without the slowest (simulation-based calibration, 8-d DE, quadrature
+    # comparisons, NetCDF): the whole file takes about 6 minutes on a shared 2-core machine
+    "kinfit.estimate.sampling": tuple(f"tests/test_sampling.py::{t}" for t in (
+        "test_linear_gaussian_known_sigma_matches_analytic_posterior",
+        "test_stretch_move_also_matches_the_analytic_posterior",
+        "test_linear_gaussian_unknown_sigma_gives_student_t",
+        "test_normal_prior_gives_conjugate_posterior",
+        "test_log_transform_keeps_the_prior_flat_in_physical_units",
+        "test_same_seed_same_chain_for_any_chunk",
+        "test_interrupted_run_resumes_to_the_identical_chain",
+        "test_error_keeps_the_checkpoint_and_says_so",
+        "test_shorter_run_extended_by_resume",
+        "test_short_chain_is_flagged_unconverged",
+        "test_non_finite_predictions_give_minus_infinity",
+        "test_option_and_prior_errors",
+        "test_start_on_a_bound_is_moved_inside",
+        "test_result_forms",
+        "test_predictive_bands_match_the_linear_closed_form",
+        "test_checkpoint_file_content")),
 }
 
 GROUPS = {"physics": PHYSICS, "estimate": ESTIMATE}
-DEFAULT_SAMPLE = {"physics": 120, "estimate": 50}
+DEFAULT_SAMPLE = {"physics": 120, "estimate": 40}
 
 # Survivors judged equivalent by reading them: mutant id -> why the behaviour cannot change.
-EQUIVALENT: dict[str, str] = {}
+EQUIVALENT: dict[str, str] = {
+    # physics
+    "kinfit.calculator:58:43-53:> -> <":
+        "start of the Weisz-Prater inversion's bracket only: the while loops widen the bracket "
+        "until it holds the root of a monotone function, and brentq (xtol 1e-14 in ln Phi) "
+        "returns the same Phi",
+    "kinfit.reactors:156:75-78:1.0 -> 1.1":
+        "upper clip of the Newton start value for the panel fraction tau; every Newton step "
+        "clips tau to [0, 1] again and iterates to 1e-14, so the time inversion is unchanged",
+    "kinfit.reactors:242:67-70:0.5 -> 0.55":
+        "fallback point of the CSTR root finder when the secant leaves the bracket: 0.55 is "
+        "still inside the bracket, so the iteration converges to the same root",
+    "kinfit.reactors:248:22-27:drop ~":
+        "switches the Illinois halving off for unconverged points: plain regula falsi, slower "
+        "but converging to the same root (checked by hand: outlets agree to 1e-13 relative "
+        "for orders 0.5 to 3 and k from 1e-3 to 100)",
+    "kinfit.reactors:254:26-52:<= -> <":
+        "stop test b - a <= rtol |C_in| against <: differs only when the two floats are equal, "
+        "and then costs one more iteration to the same root",
+}
 
 # ------------------------------------------------------------------------------------------
 
@@ -278,7 +315,7 @@ def resolve_targets(group: str, files: list[str] | None) -> dict[str, tuple[str,
             out[name] = (str(Path(spec.origin).resolve().relative_to(ROOT)), tests)
     for _, (_, tests) in out.items():
         for t in tests + GUARDS:
-            if not (ROOT / t).is_file():
+            if not (ROOT / t.split("::")[0]).is_file():
                 problems.append(f"test file '{t}' does not exist; edit the module table at the "
                                 "top of bench_mutation.py")
     if problems:
@@ -356,7 +393,7 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--group", choices=sorted(GROUPS), default="physics")
     ap.add_argument("--sample", type=int, default=None,
-                    help="mutants drawn (default 120 physics, 50 estimate; 0 = all)")
+                    help="mutants drawn (default 120 physics, 40 estimate; 0 = all)")
     ap.add_argument("--seed", type=int, default=2026)
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--files", nargs="+", default=None,
