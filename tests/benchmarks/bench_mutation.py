@@ -122,6 +122,8 @@ EQUIVALENT: dict[str, str] = {
     "kinfit.reactors:254:26-52:<= -> <":
         "stop test b - a <= rtol |C_in| against <: differs only when the two floats are equal, "
         "and then costs one more iteration to the same root",
+    "kinfit.transport._lh_table:313:86-88:drop -":
+        "np.stack(..., axis=-1) -> axis=1 on 1-D arrays of shape (N,): both give (N, 4)",
 }
 
 # ------------------------------------------------------------------------------------------
@@ -368,13 +370,15 @@ def baseline(tests: tuple[str, ...]) -> tuple[tuple[str, ...], float]:
     return failing, dt
 
 
-def run_mutant(m: Mutant, deselect: tuple[str, ...], timeout: float) -> tuple[str, float]:
+def run_mutant(m: Mutant, deselect: tuple[str, ...], timeout: float,
+               guards_only: bool = False) -> tuple[str, float]:
     src = mutated_source(m)
     with tempfile.TemporaryDirectory(prefix="kinfit-mut-") as tmp:
         tree = Path(tmp)
         _copy_tree(tree)
         (tree / m.path).write_text(src, encoding="utf-8")
-        status, dt, _ = _pytest(tree, m.tests + GUARDS, deselect, timeout)
+        tests = GUARDS if guards_only else m.tests + GUARDS
+        status, dt, _ = _pytest(tree, tests, deselect, timeout)
     return ("survived" if status == "pass" else "killed"), dt
 
 
@@ -400,6 +404,9 @@ def main(argv: list[str] | None = None) -> int:
                     help="mutate these files only (relative to the repository root)")
     ap.add_argument("--only", nargs="+", default=None, help="run these mutant ids only")
     ap.add_argument("--list", action="store_true", help="list the sample and exit")
+    ap.add_argument("--recheck", action="store_true",
+                    help="run only the guard test files (for survivors of a full run: the "
+                         "mapped tests already passed on them)")
     args = ap.parse_args(argv)
 
     targets = resolve_targets(args.group, args.files)
@@ -429,6 +436,10 @@ def main(argv: list[str] | None = None) -> int:
     t_start = time.perf_counter()
     test_sets = sorted({m.tests for m in sample})
     base: dict[tuple[str, ...], tuple[tuple[str, ...], float]] = {}
+    if args.recheck:
+        test_sets = [()]
+        sample = [Mutant(m.module, m.path, m.index, m.lineno, m.col, m.end_col, m.op, (), m.dup)
+                  for m in sample]
     for tests in test_sets:
         base[tests] = baseline(tests + GUARDS)
         failing, dt = base[tests]
@@ -437,7 +448,8 @@ def main(argv: list[str] | None = None) -> int:
 
     def job(m: Mutant) -> tuple[Mutant, str, float]:
         failing, dt = base[m.tests]
-        status, t = run_mutant(m, failing, timeout=max(60.0, 4.0 * dt))
+        status, t = run_mutant(m, failing, timeout=max(60.0, 4.0 * dt),
+                               guards_only=args.recheck)
         return m, status, t
 
     results: list[tuple[Mutant, str, float]] = []
