@@ -321,8 +321,9 @@ def test_first_order_sphere_series_branch_against_mpmath(p):
 
     val, slope = first_order_log(np.array([p]), 2)
     lp = mp.log(mp.mpf(p))
-    assert float(val[0]) == pytest.approx(float(ln_eta(lp)), rel=3e-11)
-    assert float(slope[0]) == pytest.approx(float(mp.diff(ln_eta, lp)), rel=3e-11)
+    assert float(val[0]) == pytest.approx(float(ln_eta(lp)), rel=3e-11, abs=0)
+    assert float(slope[0]) == pytest.approx(float(mp.diff(ln_eta, lp)), rel=3e-11,
+                                         abs=0)
 
 
 @pytest.mark.parametrize("geometry", ["slab", "sphere"])
@@ -363,3 +364,45 @@ def test_power_law_table_builder_reproduces_the_shipped_file():
             for name, fresh in _pellet_phase.grid_values(a).items():
                 np.testing.assert_allclose(fresh, data[f"{geometry}/{name}"], rtol=0,
                                            atol=1e-7, err_msg=f"{geometry}/{name}")
+
+
+@pytest.mark.parametrize("phi", [0.01, 0.02, 0.033])
+def test_first_order_sphere_eta_series_against_mpmath(phi):
+    # eta = 3 (x coth x - 1)/x^2, x = 3 Phi (Thiele 1939), at 50 digits; the x^8 series used
+    # below x = 0.1 is exact to about 1e-16 there (next term of order x^10/1e6), so 1e-14
+    import mpmath as mp
+
+    from kinfit.transport.pellet import _eta_first_order
+
+    mp.mp.dps = 50
+    x = 3 * mp.mpf(phi)
+    ref = float(3 * (x * mp.coth(x) - 1) / x**2)
+    got = float(_eta_first_order(np.array([phi]), 2)[0])
+    assert got == pytest.approx(ref, rel=1e-14, abs=0)
+
+
+@pytest.mark.parametrize(("a", "c1"), [(1, 0.25), (2, 1.0 / 3.0), (0, 0.0)])
+def test_large_modulus_coefficient_first_order(a, c1):
+    # eta Phi = 1 - c1/Phi + ... at first order: sphere coth(3 Phi) - 1/(3 Phi) gives 1/3
+    # (Thiele 1939); cylinder I1(2 Phi)/I0(2 Phi) ~ 1 - 1/(4 Phi) (Abramowitz & Stegun 1964,
+    # 9.7.1); slab tanh gives 0. Checked against mpmath at Phi = 1e6 as well
+    import mpmath as mp
+
+    from kinfit.transport._pellet_phase import large_modulus_coefficient
+
+    mp.mp.dps = 40
+    P = mp.mpf(10) ** 6
+    eta_phi = {0: mp.tanh(P), 1: mp.besseli(1, 2 * P) / mp.besseli(0, 2 * P),
+               2: mp.coth(3 * P) - 1 / (3 * P)}[a]
+    assert float(large_modulus_coefficient(np.array(1.0), a)) == pytest.approx(c1, rel=1e-14)
+    assert float((1 - eta_phi) * P) == pytest.approx(c1, rel=1e-5, abs=1e-12)
+
+
+def test_pellet_rejects_a_zero_surface_rate():
+    # a rate of exactly 0 at Cs > C_eq has no pellet problem to solve (eta = r_obs/r(Cs) is
+    # 0/0): refused at the surface check, with the message that names the point
+    from kinfit.errors import ModelError
+
+    with pytest.raises(ModelError, match=r"rate at the surface must be positive.*at point 1"):
+        pellet_eta(lambda C: np.where(C > 1.5, 0.0, C), lambda C: np.ones_like(C),
+                   np.array([1.0, 2.0]), 1e-9, 1e-4, "slab")

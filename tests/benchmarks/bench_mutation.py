@@ -124,6 +124,10 @@ EQUIVALENT: dict[str, str] = {
         "and then costs one more iteration to the same root",
     "kinfit.transport._lh_table:313:86-88:drop -":
         "np.stack(..., axis=-1) -> axis=1 on 1-D arrays of shape (N,): both give (N, 4)",
+    "kinfit.transport.pellet:186:7-65:and -> or":
+        "chooses when the table lookup contracts only the distinct orders of a request (an "
+        "optimisation): the distinct values and the per-point index are correct for any size, "
+        "so both paths interpolate the same table values",
 }
 
 # ------------------------------------------------------------------------------------------
