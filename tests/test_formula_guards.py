@@ -406,3 +406,15 @@ def test_pellet_rejects_a_zero_surface_rate():
     with pytest.raises(ModelError, match=r"rate at the surface must be positive.*at point 1"):
         pellet_eta(lambda C: np.where(C > 1.5, 0.0, C), lambda C: np.ones_like(C),
                    np.array([1.0, 2.0]), 1e-9, 1e-4, "slab")
+
+
+def test_pellet_well_resolved_case_gives_no_grid_warning():
+    # first-order slab at Phi = 1: the default grid resolves it (tanh(Phi)/Phi, Thiele 1939, to
+    # 1e-6 here), so no grid-error warning may be raised
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        eta, phi = pellet_eta(lambda C: 0.1 * C, lambda C: 0.1 + 0 * C, np.array([1.0]), 1e-9,
+                              1e-4, "slab")
+    assert float(eta[0]) == pytest.approx(math.tanh(phi[0]) / phi[0], rel=1e-6)

@@ -124,6 +124,12 @@ EQUIVALENT: dict[str, str] = {
         "and then costs one more iteration to the same root",
     "kinfit.transport._lh_table:313:86-88:drop -":
         "np.stack(..., axis=-1) -> axis=1 on 1-D arrays of shape (N,): both give (N, 4)",
+    "kinfit.transport._pellet_solver:107:30-33:2.0 -> 2.2":
+        "start profile of the pellet Newton iteration only; Newton converges to tol 1e-10 of "
+        "Cs - C_eq from it, so eta is unchanged",
+    "kinfit.transport._pellet_solver:190:17-18:0 -> 1":
+        "iterations = 0 -> 1 before the loop: the loop variable overwrites it (max_iter >= 1 "
+        "is checked on entry)",
     "kinfit.transport.pellet:186:7-65:and -> or":
         "chooses when the table lookup contracts only the distinct orders of a request (an "
         "optimisation): the distinct values and the per-point index are correct for any size, "
