@@ -418,3 +418,12 @@ def test_pellet_well_resolved_case_gives_no_grid_warning():
         eta, phi = pellet_eta(lambda C: 0.1 * C, lambda C: 0.1 + 0 * C, np.array([1.0]), 1e-9,
                               1e-4, "slab")
     assert float(eta[0]) == pytest.approx(math.tanh(phi[0]) / phi[0], rel=1e-6)
+
+
+def test_effective_diffusivity_accepts_porosity_one():
+    # De = eps D_m / tau (parallel-pore model, Wheeler 1951; common practice) is defined on
+    # (0, 1]: eps = 1 (no solid) is the upper limit, De = D_m / tau
+    from kinfit.transport.properties import effective_diffusivity
+
+    assert float(effective_diffusivity(1.0, 2e-9, 4.0)) == pytest.approx(5e-10, rel=1e-15)
+    assert float(effective_diffusivity(0.4, 2e-9, 4.0)) == pytest.approx(2e-10, rel=1e-15)

@@ -66,7 +66,7 @@ PHYSICS: dict[str, tuple[str, ...]] = {
     "kinfit.transport._pellet_solver": ("tests/test_pellet.py",),
     "kinfit.transport._lh_table": ("tests/test_lh_pellet.py",),
     "kinfit.transport.surface": ("tests/test_criteria.py", "tests/test_model.py",
-                                 "tests/test_reactors.py"),
+                                 "tests/test_reactors.py", "tests/test_lh_pellet.py"),
     "kinfit.transport.film": ("tests/test_film.py",),
     "kinfit.transport.properties": ("tests/test_properties.py", "tests/test_film.py"),
     "kinfit.criteria": ("tests/test_criteria.py", "tests/test_calculator.py"),
