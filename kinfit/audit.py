@@ -48,7 +48,9 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import stats
 
+from kinfit.audit_film import FILM_EA_ALLOWANCE, FILM_EA_LIMIT, film_signature
 from kinfit.audit_lh import lh_local, lh_signatures, pore_not_tested
+from kinfit.audit_report import refit_inadequacy
 from kinfit.claims import (  # noqa: F401 - re-exported for callers of the audit
     BASES,
     Claim,
@@ -72,8 +74,6 @@ __all__ = ["Claim", "ClaimFile", "ClaimAudit", "AuditResult", "VERDICTS", "SOURC
 Array = NDArray[np.float64]
 VERDICTS = ("consistent with intrinsic kinetics", "transport-contaminated",
             "not reproduced by the data", "not testable with these data")
-#: apparent activation energy below which film control is suspected, J/mol (common practice)
-FILM_EA_LIMIT = 15e3
 #: claimed/intrinsic activation-energy ratio counted as "about half"
 PORE_EA_RATIO = (0.35, 0.70)
 #: tolerance on the apparent order (n + 1)/2 and on "first order"
@@ -88,8 +88,11 @@ SOURCES = {
                     "Watts 1988)",
     "pore_signature": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                       "(Weisz & Prater 1954; Satterfield 1970)",
-    "film_signature": "film control: apparent activation energy near zero (below about "
-                      "15 kJ/mol) and first apparent order (common practice)",
+    "film_signature": "film control: the claimed activation energy matches the film's own, "
+                      "from D ~ T/mu (Stokes-Einstein; Wilke & Chang 1955) and kc ~ D^(2/3) "
+                      "nu^(-5/12) (Sano et al. 1974 form), about 17 kJ/mol in water at 40-70 "
+                      "degC; with no liquid named, near zero (below 15 kJ/mol, common "
+                      "practice); and the transport-aware refit labels runs 'film'",
 }
 #: sources added to audit.json when a claim is Langmuir-Hinshelwood
 LH_SOURCES = {
@@ -172,7 +175,7 @@ class AuditResult:
         from kinfit.outputs import to_plain
 
         lh = any(c.values.get("rate_law") == "langmuir_hinshelwood" for c in self.claims)
-        return to_plain({"kinfit_audit": 1, "claim_file": str(self.path), "title": self.title,
+        return to_plain({"kinfit_audit": 1, "claim_file": Path(self.path).name, "title": self.title,
                          "claims": [c.to_dict() for c in self.claims],
                          "thresholds": self.thresholds,
                          "sources": {**SOURCES, **LH_SOURCES} if lh else SOURCES,
@@ -249,14 +252,12 @@ def _criteria_at_conditions(built: _Built, cf: ClaimFile, claim: Claim,
                 "kc": float(kc[i]) if built.has_kc else None,
                 **({} if n_app is None else {
                     "apparent_order": float(n_app[i]),
-                    "carberry_limit": thresholds.carberry / max(abs(float(n_app[i])), 1e-12)}),
+                    "carberry_limit": float(thresholds.carberry_limit(n_app[i]))}),
             },
             "as_intrinsic": {
                 "effectiveness_factor": float(c.effectiveness_factor[i]),
                 "thiele_modulus": float(c.thiele_modulus[i]),
-                "regime": str(c.regime[i]),
-                "shares": {"film": float(c.film_share[i]), "pore": float(c.pore_share[i]),
-                           "reaction": float(c.reaction_share[i])},
+                **c.shares.at(i),
                 "observed_rate": float(state.observed.rate[i]),
                 "carberry": float(c.carberry[i]) if built.has_kc else None,
                 "weisz_prater": float(c.weisz_prater[i]) if built.De else None,
@@ -299,6 +300,7 @@ def _refit(study: Study, table, claim: Claim, label: str) -> dict[str, Any]:
         "joint_region_bound": bound, "inside_joint_region": bool(s_claim <= bound),
         "rejected": rejected, "regimes": {rid: r["regime"] for rid, r in res.runs.items()},
         "warnings": sorted({str(w.message) for w in caught}),
+        "adequacy": res.fit.get("adequacy"),
     }
 
 
@@ -335,21 +337,16 @@ def _kinetic_table(built: _Built, cf: ClaimFile, claim: Claim, *, transport: boo
                            for n in table])
 
 
-def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: bool
-                ) -> dict[str, Any]:
+def _signatures(claim: Claim, transport_fit: dict[str, Any] | None, has_pellet: bool,
+                built: _Built | None = None) -> dict[str, Any]:
     Ea, n = claim.activation_energy, claim.values()["order"]
     out: dict[str, Any] = {}
-    film = Ea < FILM_EA_LIMIT
     first = abs(n - 1.0) <= ORDER_TOLERANCE
-    out["film"] = {
-        "found": bool(film),
-        "text": (f"claimed activation energy {Ea / 1e3:.3g} kJ/mol is below "
-                 f"{FILM_EA_LIMIT / 1e3:g} kJ/mol" + (" with a first apparent order" if first
-                                                      else "")
-                 + ": the signature of film control (common practice)") if film else
-                (f"claimed activation energy {Ea / 1e3:.3g} kJ/mol is not near zero: no film "
-                 "signature"),
-    }
+    out["film"] = film_signature(
+        Ea, fluid=None if built is None else dict(built.study.fluid),
+        temperatures=[] if built is None else [r.temperature for r in built.study.runs],
+        transport_fit=transport_fit, first_order=first,
+        head=f"claimed activation energy {Ea / 1e3:.3g} kJ/mol")
     skip = pore_not_tested(transport_fit, has_pellet)
     if skip is not None:
         out.update(skip)
@@ -445,7 +442,8 @@ def _criteria_evidence(crit: dict[str, Any], thresholds: Thresholds) -> tuple[li
         uncomputed = True
     elif wp[1] >= lim["weisz_prater"]:
         out.append(f"Weisz-Prater number up to {wp[1]:.3g} (run {wp[0]}) against the limit "
-                   f"{lim['weisz_prater']:.3g} (Psi_L; Psi_R < 0.3, Weisz & Prater 1954): "
+                   f"{lim['weisz_prater']:.3g} (Psi_L, L = Vp/Sp; first-order eta 0.95 in this "
+                   "geometry): "
                    "pore diffusion limits the rate")
     bad = [(rid, r["as_intrinsic"]) for rid, r in runs.items()
            if r["as_intrinsic"]["regime"] != "kinetic"
@@ -491,8 +489,9 @@ def _audit_one(cf: ClaimFile, claim: Claim, thresholds: Thresholds) -> ClaimAudi
             if not r["converged"]:
                 notes.append(f"the {key.replace('_', '-')} refit did not converge "
                              f"({r['message']}); its test is indicative only")
-    signatures = (lh_signatures(claim, crit, transport_fit, bool(built.De)) if claim.is_lh
-                  else _signatures(claim, transport_fit, bool(built.De)))
+    signatures = (lh_signatures(claim, crit, transport_fit, bool(built.De),
+                                fluid=dict(built.study.fluid)) if claim.is_lh
+                  else _signatures(claim, transport_fit, bool(built.De), built))
     evidence: list[str] = []
     if claim.basis == "as measured":
         evidence += crit_evidence
@@ -594,12 +593,14 @@ def audit_claims(path: str | Path | ClaimFile, *, thresholds: Thresholds | None 
     claims = tuple(_audit_one(cf, c, thresholds) for c in cf.claims)
     return AuditResult(cf.path, cf.title, claims,
                        {"carberry": f"{thresholds.carberry:g}/|n|",
+                        "weisz_prater_eta": thresholds.weisz_prater_eta,
                         "weisz_prater_radius": thresholds.weisz_prater_radius,
-                        "mears": thresholds.mears, "effectiveness": thresholds.effectiveness,
-                        "film_activation_energy": FILM_EA_LIMIT,
+                        "mears": f"{thresholds.mears:g} (sphere; x (R/L)/3 for other shapes)", "effectiveness": thresholds.effectiveness,
+                        "film_activation_energy_without_liquid": FILM_EA_LIMIT,
+                        "film_activation_energy_allowance": FILM_EA_ALLOWANCE,
                         "pore_activation_energy_ratio": list(PORE_EA_RATIO),
                         "order_tolerance": ORDER_TOLERANCE, "level": LEVEL},
-                       manifest(files=files, argv=None))
+                       manifest(files=files, argv=None, base=cf.path))
 
 
 # ------------------------------------------------------------------------------ command line
@@ -614,14 +615,17 @@ def add_audit_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_audit_command(args: argparse.Namespace) -> int:
     """Run ``kinfit audit``; returns the exit code."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
 
     result = audit_claims(args.claim)
-    result = replace(result, manifest={**result.manifest, "command": list(sys.argv)})
+    result = replace(result, manifest={**result.manifest, "command": recorded_command(sys.argv)})
     out = prepare_out_dir(args.out)
     result.save(out)
     for c in result.claims:
         print(f"{c.name}: {c.verdict}")
+        caution = refit_inadequacy(c.reproduction)
+        if caution:
+            print(f"  caution: {caution}")
         for e in c.evidence:
             print(f"  - {e}")
         for m in c.missing:

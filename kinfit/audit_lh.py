@@ -92,31 +92,29 @@ def pore_not_tested(transport_fit: dict[str, Any] | None, has_pellet: bool
 
 
 def lh_signatures(claim: Claim, crit: dict[str, Any], transport_fit: dict[str, Any] | None,
-                  has_pellet: bool) -> dict[str, Any]:
+                  has_pellet: bool, *, fluid: dict[str, Any] | None = None) -> dict[str, Any]:
     """Signatures of a Langmuir-Hinshelwood claim: film control from the claimed law's
     apparent activation energy and order at the test conditions; pore control by comparing the
     claimed law's apparent Ea and order at the runs the transport-aware refit puts in the pore
     regime with what strong pore diffusion makes of the refitted intrinsic law there."""
-    from kinfit.audit import FILM_EA_LIMIT, ORDER_TOLERANCE, PORE_EA_RATIO
+    from kinfit.audit import ORDER_TOLERANCE, PORE_EA_RATIO
+    from kinfit.audit_film import film_signature
 
     runs = crit["runs"]
     ids = list(runs)
     T = np.array([runs[r]["temperature"] for r in ids])
     C = np.array([runs[r]["initial_concentration"] for r in ids])
     n_app, E_app = lh_local(claim, T, C)
-    film = bool(np.all(np.abs(E_app) < FILM_EA_LIMIT))
     first = bool(np.all(np.abs(n_app - 1.0) <= ORDER_TOLERANCE))
     span = (f"{E_app.min() / 1e3:.3g} to {E_app.max() / 1e3:.3g} kJ/mol" if E_app.size > 1
             and not np.isclose(E_app.min(), E_app.max()) else f"{E_app.mean() / 1e3:.3g} kJ/mol")
     head = (f"apparent activation energy of the claimed law at the test conditions, "
-            f"Ea + n_app dH_ads = {span}")
+            f"Ea + n_app dH_ads = {span},")
+    film = film_signature(E_app, fluid=fluid, temperatures=T, transport_fit=transport_fit,
+                          head=head, first_order=first)
     out: dict[str, Any] = {
-        "film": {"found": film, "apparent_activation_energy": [float(e) for e in E_app],
-                 "apparent_order": [float(n) for n in n_app],
-                 "text": (f"{head}, is near zero (|E_app| below {FILM_EA_LIMIT / 1e3:g} kJ/mol)"
-                          + (" with a first apparent order" if first else "")
-                          + ": the signature of film control (common practice)") if film else
-                         f"{head}, is not near zero: no film signature"},
+        "film": {**film, "apparent_activation_energy": [float(e) for e in E_app],
+                 "apparent_order": [float(n) for n in n_app]},
     }
     skip = pore_not_tested(transport_fit, has_pellet)
     if skip is not None:

@@ -9,7 +9,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-__all__ = ["markdown", "is_lh"]
+__all__ = ["markdown", "is_lh", "refit_inadequacy"]
 
 
 def _fmt(v: float | None, spec: str = ".3g") -> str:
@@ -134,6 +134,9 @@ def markdown(result: Any, sources: Mapping[str, str]) -> str:
     lines += _summary(result.claims)
     for c in result.claims:
         lines += ["", f"## {c.name}", "", f"**Verdict: {c.verdict}.**", ""]
+        caution = refit_inadequacy(c.reproduction)
+        if caution:
+            lines += [f"Caution: {caution}.", ""]
         if c.evidence:
             lines += ["Evidence:", ""] + [f"- {e}" for e in c.evidence] + [""]
         if c.missing:
@@ -143,5 +146,18 @@ def markdown(result: Any, sources: Mapping[str, str]) -> str:
         lines += ["### Signatures", ""] + [f"- {s['text']}" for s in c.signatures.values()]
         if c.notes:
             lines += ["", "Notes:", ""] + [f"- {n}" for n in c.notes]
+    from kinfit.outputs import cautions_markdown
+
+    lines += ["", *cautions_markdown()]
     lines += ["", "## Sources", ""] + [f"- {k}: {v}" for k, v in sources.items()]
     return "\n".join(lines) + "\n"
+
+
+def refit_inadequacy(reproduction: Mapping[str, Any]) -> str | None:
+    """A caution to the verdict when the transport-aware refit itself fails its adequacy
+    tests (the verdict then rests on a model the data reject), else None."""
+    block = (reproduction.get("transport_aware") or {}).get("adequacy") or {}
+    if block.get("adequate") is not False:
+        return None
+    return ("the transport-aware refit is itself not adequate, so this verdict rests on a "
+            "model the data reject: " + "; ".join(block.get("failed") or []))

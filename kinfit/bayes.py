@@ -3,7 +3,7 @@ started at the least-squares optimum, posterior predictive bands per run, and pe
 quantities (eta, Weisz-Prater, Carberry) with the probability of each regime.
 
 Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv,
-posterior_bands.csv, posterior.nc (NetCDF through ArviZ where available) and the sampler
+posterior_bands.csv, posterior.nc (NetCDF-4 with ArviZ's groups) and the sampler
 checkpoint posterior_checkpoint.npz (kept, so ``--resume`` continues it).
 """
 
@@ -23,14 +23,21 @@ from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting import main_spec
 from kinfit.model import Model
-from kinfit.outputs import manifest, write_frame_atomic, write_json_atomic
+from kinfit.model_checks import posterior_adequacy
+from kinfit.outputs import manifest, recorded_path, write_frame_atomic, write_json_atomic
 from kinfit.results import FitResult
 from kinfit.simulate import run_table
 from kinfit.study import Study
 
-__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries"]
+__all__ = ["SampleOptions", "sample_study", "posterior_run_summaries", "DEFAULT_SEED", "MAX_STEPS"]
 
 _DERIVED = ("effectiveness_factor", "thiele_modulus", "weisz_prater", "carberry", "mears")
+
+
+#: default seed of sampling (and of ``kinfit run``): same study, same chain
+DEFAULT_SEED = 20261201
+#: default step cap of sampling, as the README states
+MAX_STEPS = 10_000
 
 
 @dataclass(frozen=True)
@@ -48,6 +55,8 @@ class SampleOptions:
     tau_multiple : float
         Stop when the chain is longer than this multiple of the autocorrelation time.
     seed : int or None
+        Seed of the walkers' start and moves (default :data:`DEFAULT_SEED`, so that a
+        standalone ``kinfit sample`` is reproducible like ``kinfit run``; None draws one).
     resume : bool
         Continue from the checkpoint in the output folder.
     progress : bool
@@ -60,10 +69,10 @@ class SampleOptions:
     """
 
     walkers: int | None = None
-    max_steps: int = 20000
+    max_steps: int = MAX_STEPS
     chunk: int = 500
     tau_multiple: float = 50.0
-    seed: int | None = None
+    seed: int | None = DEFAULT_SEED
     resume: bool = False
     progress: bool = True
     n_predictive: int = 200
@@ -146,17 +155,15 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
                               "q05": fine.q05, "q50": fine.q50, "q95": fine.q95})
     write_frame_atomic(out / "posterior_bands.csv", frame)
     post.to_csv(out / "posterior_draws.csv")
-    try:
-        post.to_netcdf(out / "posterior.nc")
-    except (ImportError, ValueError, OSError):
-        pass
+    post.to_netcdf(out / "posterior.nc")  # NetCDF-4, ArviZ's groups (h5netcdf is declared)
     pick = rng.choice(post.n_draws, size=min(options.n_predictive // 2 or 1, post.n_draws),
                       replace=False)
     derived = posterior_run_summaries(model, np.asarray(post.draws)[pick][:, : post.n_model])
     diag = post.diagnostics
     content = {
         "parameters": post.summary(),
-        "sampler": post.settings.to_dict(),
+        "sampler": {**post.settings.to_dict(), "checkpoint": recorded_path(
+            out / "posterior_checkpoint.npz", study.path)},
         "convergence": {
             "converged": bool(post.converged), "reasons": list(post.reasons),
             "verdict": post.verdict, "acceptance_fraction": float(post.acceptance_fraction),
@@ -166,7 +173,10 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         "runs": derived,
         "predictive": {"band": "central 90 % of the mean response", "draws": bands.n_draws,
                        "failed": bands.n_failed},
-        "manifest": manifest(files=study.files, seed=options.seed, argv=argv),
+        "adequacy": posterior_adequacy(model, study, post, fit.runs, n_draws=options.n_predictive,
+                                       rng=rng),
+        "manifest": manifest(files=study.files, seed=options.seed, argv=argv,
+                             base=study.path),
     }
     del diag
     write_json_atomic(out / "posterior.json", content)

@@ -7,13 +7,16 @@ speed through a published slurry Sherwood correlation and the liquid's propertie
 
 - Carberry number Ca = r / (kc a_m Cb) (Carberry 1976), and the surface concentration from the
   steady film, Cs = Cb (1 - Ca) (derived);
-- Mears number r rho_p R n / (kc Cb) with the particle density and R = dp/2 (Mears 1971);
+- Mears number r rho_p R n / (kc Cb) with the particle density and R = dp/2 (Mears 1971 wrote
+  it with the bed density), limit 0.05 R/L for a 5 % rate error;
 - Weisz-Prater number Psi_L = r rho_p L^2 / (De Cs) in the L = Vp/Sp normalisation (and the
-  radius form Psi_R = Psi_L (R/L)^2 the classic limit 0.3 refers to; Weisz & Prater 1954);
+  radius form Psi_R = Psi_L (R/L)^2; Weisz & Prater 1954), limit where the first-order eta of
+  the geometry is 0.95 (:mod:`kinfit.criteria`);
 - the generalised Thiele modulus Phi by inverting Psi_L = eta(Phi) Phi^2 2/(n + 1) for the order
   and geometry (for first order Psi = eta Phi^2), and the effectiveness factor eta(Phi);
 - the shares of film, pore and reaction resistance and the regime label of the results
-  contract, with the thresholds and a verdict.
+  contract (:mod:`kinfit.resistances`; not assessed when kc or De is missing), with the
+  thresholds and a verdict.
 
 All inputs and outputs are SI; the command line parses quantities with units.
 """
@@ -27,8 +30,9 @@ from typing import Any
 import numpy as np
 from scipy import optimize
 
-from kinfit.criteria import THRESHOLD_SOURCES, Thresholds, regime_label
+from kinfit.criteria import THRESHOLD_SOURCES, Thresholds
 from kinfit.errors import StudyError
+from kinfit.resistances import resistance_shares
 
 __all__ = ["criteria_from_measurement", "add_criteria_arguments", "run_criteria_command",
            "format_criteria"]
@@ -239,24 +243,24 @@ def criteria_from_measurement(
         notes.append("no effective diffusivity: Weisz-Prater, Thiele modulus and eta not "
                      "computed (pore resistance not assessed)")
 
-    # resistances in series per kg, linearised at the surface (results contract)
+    # resistances in series per kg, linearised at the surface (results contract); a
+    # resistance not assessed leaves every share and the label unknown
     eta_v = 1.0 if eta is None else eta
-    k1 = (r / eta_v) / Cs
-    res_film = 0.0 if kc is None else 1.0 / (kc * a_m)
-    res_react = 1.0 / k1
-    res_pore = (1.0 / eta_v - 1.0) / k1
-    total = res_film + res_react + res_pore
-    shares = {"film": res_film / total, "pore": None if eta is None else res_pore / total,
-              "reaction": res_react / total}
-    regime = str(regime_label(np.asarray(res_film / total), np.asarray(res_pore / total),
-                              np.asarray(res_react / total)))
+    sh = resistance_shares(intrinsic_rate=r / eta_v, surface_concentration=Cs,
+                           effectiveness=eta, conductance=None if kc is None else kc * a_m)
+    labelled = sh.at()
+    shares, regime, controlling = (labelled["shares"], labelled["regime"],
+                                   labelled["controlling"])
+    resistances = {k: (None if np.isnan(v) else float(v)) for k, v in sh.resistances.items()}
+    if regime is None:
+        missing = [w for w, v in (("film", kc), ("pore", eta)) if v is None]
+        notes.append(f"{' and '.join(missing)} resistance not assessed: the resistance shares "
+                     "and the regime label are not assessed")
 
-    limits = thresholds.to_dict(geometry, n if n > 0 else 1.0)
+    limits = thresholds.to_dict(geometry, n)
     if n == 0:
-        limits["carberry"] = math.inf
         notes.append("zero order: a film concentration drop does not change the rate while "
                      "Cs > 0, so the Carberry and Mears limits do not bind")
-    limits["weisz_prater_radius"] = thresholds.weisz_prater_radius
     passes: dict[str, bool | None] = {
         "carberry": None if carberry is None else bool(carberry < limits["carberry"]),
         "mears": None if mears is None else bool(mears < limits["mears"] or n == 0),
@@ -273,9 +277,10 @@ def criteria_from_measurement(
             why.append(f"film resistance (Carberry {carberry:.3g} against {limits['carberry']:.3g})")
         if passes["weisz_prater"] is False or passes["effectiveness_factor"] is False:
             why.append(f"pore diffusion (Weisz-Prater Psi_R {wp_R:.3g} against "
-                       f"{thresholds.weisz_prater_radius:g}, eta {eta:.3g})")
-        verdict = ("not intrinsic: " + "; ".join(why) + f" (regime label '{regime}' by the "
-                   "resistance shares)")
+                       f"{limits['weisz_prater_radius']:.3g}, eta {eta:.3g})")
+        verdict = ("not intrinsic: " + "; ".join(why) + (
+            f" (regime label '{regime}' by the resistance shares)" if regime is not None
+            else " (regime not assessed)"))
     elif unknown:
         intrinsic = None
         verdict = ("no transport limit by the criteria that could be computed; not assessed: "
@@ -283,7 +288,7 @@ def criteria_from_measurement(
     else:
         intrinsic = True
         verdict = ("intrinsic: film and pore resistance negligible by every criterion "
-                   f"(regime {regime})")
+                   f"(regime {regime}, reaction share {shares['reaction']:.3f})")
     return {
         "inputs": {"rate": r, "particle_diameter": dp, "particle_density": rho,
                    "bulk_concentration": Cb, "effective_diffusivity": De,
@@ -293,7 +298,8 @@ def criteria_from_measurement(
         "characteristic_length": L, "external_area": a_m, "film_coefficient": kc,
         "surface_concentration": Cs, "carberry": carberry, "mears": mears,
         "weisz_prater": wp, "weisz_prater_radius": wp_R, "thiele_modulus": phi,
-        "effectiveness_factor": eta, "shares": shares, "regime": regime, "passes": passes,
+        "effectiveness_factor": eta, "shares": shares, "resistances": resistances,
+        "regime": regime, "controlling": controlling, "passes": passes,
         "intrinsic": intrinsic, "verdict": verdict, "thresholds": limits, "notes": notes,
         "sources": dict(THRESHOLD_SOURCES),
         "units": {"rate": "mol/(kg*s)", "particle_diameter": "m",
@@ -344,9 +350,14 @@ def format_criteria(res: dict[str, Any]) -> str:
     lines.append(f"  {'Thiele modulus Phi (generalised, L = Vp/Sp)':<42}"
                  f"{_num(res['thiele_modulus']):>11}")
     s = res["shares"]
-    pore = "n/a" if s["pore"] is None else f"{100 * s['pore']:.0f} %"
-    lines.append(f"  resistance shares: film {100 * s['film']:.0f} %, pore {pore}, reaction "
-                 f"{100 * s['reaction']:.0f} % -> regime '{res['regime']}'")
+    if res["regime"] is None:
+        lines.append("  resistance shares: not assessed (" + ", ".join(
+            f"{k} resistance not assessed" for k in ("film", "pore")
+            if res["resistances"][k] is None) + "); regime not assessed")
+    else:
+        lines.append(f"  resistance shares: film {100 * s['film']:.1f} %, pore "
+                     f"{100 * s['pore']:.1f} %, reaction {100 * s['reaction']:.1f} % -> regime "
+                     f"'{res['regime']}' (controlling: {res['controlling']})")
     lines.append("")
     lines.append(f"  verdict: {res['verdict']}")
     for n in res["notes"]:

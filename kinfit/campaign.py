@@ -9,7 +9,7 @@ __all__ = ["campaign_summary", "TEST_MEANING"]
 
 #: what each model-free test shows when the runs agree (the trade's logic, common practice)
 TEST_MEANING = {
-    "stirrer_speed": "film resistance (says nothing about pore diffusion)",
+    "stirrer_speed": "film resistance (the pores are not tested by it)",
     "particle_diameter": "film and pore resistance together (same stirrer speed)",
     "catalyst_loading": "gas-liquid supply (the rate per catalyst mass is unchanged when the "
                         "dissolved-gas supply does not limit; common practice)",

@@ -609,7 +609,10 @@ def _film_dict(cf: ClaimFile, study: Study) -> dict[str, Any]:
     if cf.kc is None:
         return {"model": "none"}
     where = _where(cf.path, "film")
-    out: dict[str, Any] = {"model": "agitation"}
+    # the stated kc holds at the kinetics' reference temperature; it scales with the liquid's
+    # viscosity when the claim names its liquid (the study loader's default)
+    out: dict[str, Any] = {"model": "agitation",
+                           "temperature_scaling": study.film.get("temperature_scaling", "none")}
     for key, factor, exponent in (("speed", "stirrer_speed", "agitation_exponent"),
                                   ("diameter", "particle_diameter", "size_exponent")):
         levels = sorted({round(r.factor(factor), 12) for r in study.runs})

@@ -12,12 +12,22 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-from kinfit.errors import KinfitError, StudyError
+from kinfit.errors import (
+    ConvergenceWarning,
+    IdentifiabilityWarning,
+    KinfitError,
+    PlausibilityWarning,
+    RegimeWarning,
+    StudyError,
+)
 
 __all__ = ["main", "build_parser"]
 
 EXIT_OK, EXIT_FAILED, EXIT_BAD_INPUT = 0, 1, 2
 EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report SIGINT
+#: the warnings kinfit itself gives (everything else a command lets through is a leak)
+KINFIT_WARNINGS = (ConvergenceWarning, IdentifiabilityWarning, RegimeWarning,
+                   PlausibilityWarning)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -36,6 +46,11 @@ def _cmd_check(args: argparse.Namespace) -> int:
     spec = main_spec(study)  # the model choices and the parameter table must fit together
     print(campaign_summary(study))
     print(f"\nmodel: {spec.label}; parameters {', '.join(spec.parameter_names)}")
+    from kinfit.simulate import transport_scaling_warning
+
+    warning = transport_scaling_warning(study, spec)
+    if warning:
+        print(warning)
     print("study is valid")
     return EXIT_OK
 
@@ -52,7 +67,7 @@ def _cmd_simulate(args: argparse.Namespace) -> int:
     write_frame_atomic(out / "runs.csv", runs_frame(sim.runs))
     write_json_atomic(out / "simulation.json", {
         "study": study.name, "parameters": dict(study.parameters.values()), "runs": sim.runs,
-        "manifest": manifest(files=study.files),
+        "manifest": manifest(files=study.files, base=study.path),
     })
     print(runs_frame(sim.runs).to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     print(f"\nwrote {out / 'predictions.csv'}, {out / 'runs.csv'}, {out / 'simulation.json'}")
@@ -83,6 +98,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                      candidates=args.compare, argv=sys.argv)
     result.save(out)
     print(result.report())
+    _print_adequacy(result.fit.get("adequacy"))
     print(f"\nwrote {out / 'results.json'} and {out / 'predictions.csv'}")
     boot = result.extras.get("bootstrap") or {}
     if boot.get("interrupted"):
@@ -91,6 +107,23 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         return EXIT_INTERRUPTED
     if not result.converged:
         print(f"kinfit: the fit did not converge: {result.fit['message']}", file=sys.stderr)
+        return EXIT_FAILED
+    return _adequacy_exit(args, result.fit.get("adequacy"))
+
+
+def _print_adequacy(adequacy: Any) -> None:
+    from kinfit.model_checks import adequacy_lines
+
+    lines = adequacy_lines(adequacy)
+    if lines:
+        print("\n" + "\n".join(lines))
+
+
+def _adequacy_exit(args: argparse.Namespace, adequacy: Any) -> int:
+    """EXIT_FAILED when --require-adequate was given and an adequacy test failed."""
+    if getattr(args, "require_adequate", False) and not (adequacy or {}).get("adequate"):
+        print(f"kinfit: the model is not adequate: {(adequacy or {}).get('message', '')}",
+              file=sys.stderr)
         return EXIT_FAILED
     return EXIT_OK
 
@@ -114,6 +147,8 @@ def _fit_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--max-nfev", type=int, default=None, metavar="N",
                    help="cap on function evaluations of the optimiser")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")
 
 
 def _cmd_sample(args: argparse.Namespace) -> int:
@@ -131,7 +166,10 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
                             progress=not args.quiet, moves=args.moves)
-    post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    try:
+        post, content = sample_study(study, fit, out, options, argv=sys.argv)
+    except StudyError as exc:
+        raise StudyError(_option_words(str(exc))) from None
     print(post.report())
     print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
     if post.interrupted:
@@ -144,6 +182,18 @@ def _cmd_sample(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+#: the sampler's option names as the command line spells them
+_SAMPLER_OPTIONS = {"n_walkers": "--walkers", "max_steps": "--steps", "chunk": "--chunk",
+                    "tau_multiple": "--tau-multiple"}
+
+
+def _option_words(text: str) -> str:
+    """A sampler message with its internal option names replaced by the command's options."""
+    for name, flag in _SAMPLER_OPTIONS.items():
+        text = text.replace(f"the '{name}' option of sample_problem()", f"{flag}")
+    return text
+
+
 def _sample_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("study", type=Path, help="the study file (TOML)")
     p.add_argument("--fit", type=Path, default=None,
@@ -151,11 +201,15 @@ def _sample_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", type=Path, default=None,
                    help="output folder (default: the --fit folder)")
     p.add_argument("--walkers", type=int, default=None, help="ensemble size")
-    p.add_argument("--steps", type=int, default=20000, help="step cap (default 20000)")
+    from kinfit.bayes import DEFAULT_SEED, MAX_STEPS
+
+    p.add_argument("--steps", type=int, default=MAX_STEPS,
+                   help=f"step cap (default {MAX_STEPS})")
     p.add_argument("--chunk", type=int, default=500, help="steps between checkpoints")
     p.add_argument("--tau-multiple", type=float, default=50.0,
                    help="stop when the chain exceeds this many autocorrelation times")
-    p.add_argument("--seed", type=int, default=None, help="seed (same seed, same chain)")
+    p.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                   help=f"seed (same seed, same chain; default {DEFAULT_SEED})")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
     p.add_argument("--moves", choices=("de", "stretch"), default="de",
                    help="proposal: differential-evolution move (default) or stretch move")
@@ -190,13 +244,15 @@ def _cmd_run(args: argparse.Namespace) -> int:
                                    progress=not args.quiet), argv=sys.argv)
     result.save(out)
     print(result.report())
+    _print_adequacy(result.fit.get("adequacy"))
     code = EXIT_OK if result.converged else EXIT_FAILED
     if args.steps > 0:
         step(f"sampling the posterior ({args.steps} steps at most)")
-        post, _ = sample_study(study, result, out, SampleOptions(
+        post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
             progress=not args.quiet), argv=sys.argv)
         print(post.report())
+        _print_adequacy(content.get("adequacy"))
         if post.interrupted:
             # what was sampled is checkpointed; the report is still written from it
             code = EXIT_INTERRUPTED
@@ -212,18 +268,25 @@ def _cmd_run(args: argparse.Namespace) -> int:
               f"kinfit sample {args.study} --fit {out} --resume --steps {args.steps} --seed "
               f"{args.seed}, then kinfit report {args.study} --fit {out} --out {out}",
               file=sys.stderr)
+    if code == EXIT_OK:
+        code = _adequacy_exit(args, result.fit.get("adequacy"))
     return code
 
 
 def _run_arguments(p: argparse.ArgumentParser) -> None:
     _add_common(p, out=True)
-    p.add_argument("--seed", type=int, default=20261201, help="seed (default 20261201)")
+    from kinfit.bayes import DEFAULT_SEED
+
+    p.add_argument("--seed", type=int, default=DEFAULT_SEED,
+                   help=f"seed (default {DEFAULT_SEED})")
     p.add_argument("--multistart", type=int, default=0, metavar="N",
                    help="extra least-squares starts")
     p.add_argument("--steps", type=int, default=10000,
                    help="posterior step cap; sampling stops earlier once converged (0: no "
                         "sampling; default 10000)")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--require-adequate", action="store_true",
+                   help="exit 1 when a model-adequacy test fails")
 
 
 def _lazy(module: str, function: str) -> Callable[[argparse.Namespace], int]:
@@ -255,7 +318,7 @@ COMMANDS: dict[str, tuple[str, Callable[[argparse.Namespace], int]]] = {
              _lazy("kinfit.plan", "run_plan_command")),
     "report": ("write the reproducible fit report (HTML, Markdown, figures, tables)",
                _lazy("kinfit.report", "run_report_command")),
-    "diagnose": ("which runs measure true kinetics: model-free tests and per-run criteria",
+    "diagnose": ("where transport limits the rate: model-free tests and per-run criteria",
                  _lazy("kinfit.diagnostics", "run_diagnose_command")),
     "criteria": ("transport criteria for one measurement, no fitting",
                  _lazy("kinfit.calculator", "run_criteria_command")),
@@ -323,7 +386,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             parser.print_help()
             return EXIT_BAD_INPUT
         with warnings.catch_warnings():
-            warnings.simplefilter("default")
+            # kinfit's own warnings are shown once each; any other filter (a caller's, or
+            # python -W) is left as it is, so a test can turn library warnings into errors
+            for category in KINFIT_WARNINGS:
+                warnings.filterwarnings("default", category=category)
             warnings.showwarning = _show_warning
             return COMMANDS[args.command][1](args)
     except StudyError as exc:

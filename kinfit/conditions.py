@@ -16,10 +16,10 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.errors import ModelError, RegimeWarning, SolverError, StudyError
+from kinfit.errors import KinfitError, ModelError, RegimeWarning, SolverError, StudyError
 from kinfit.model import Model, ModelSpec
 from kinfit.results import FitResult
-from kinfit.study import FACTORS, Run, Study
+from kinfit.study import FACTORS, Run, Study, read_table, table_line
 from kinfit.units import parse_header, parse_quantity, to_si
 
 __all__ = [
@@ -214,11 +214,7 @@ def read_conditions(path: str | Path, study: Study) -> list[Condition]:
     path = Path(path)
     if not path.is_file():
         raise StudyError(f"conditions table '{path}' does not exist; check the path")
-    try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                            comment="#")
-    except (ValueError, OSError, pd.errors.ParserError) as exc:
-        raise StudyError(f"{path.name}: cannot read the table ({exc})") from None
+    frame = read_table(path)
     cols: dict[str, tuple[str, str | None]] = {}
     for header in frame.columns:
         h = parse_header(str(header), where=path.name)
@@ -246,7 +242,7 @@ def read_conditions(path: str | Path, study: Study) -> list[Condition]:
                 number = float(cell)
             except ValueError:
                 raise StudyError(f"'{cell}' is not a number; write a plain number (the unit "
-                                 "goes in the header)", file=path.name, row=i + 1,
+                                 "goes in the header)", file=path.name, row=table_line(frame, i),
                                  column=header) from None
             values[f] = float(to_si(number, unit or "", FACTOR_KINDS[f],
                                     where=f"{path.name}, column '{header}'"))
@@ -464,18 +460,25 @@ def covariance_draws(fitted: FittedModel, n: int, rng: np.random.Generator) -> A
 
     Raises
     ------
-    StudyError
-        The fit has no usable covariance.
+    KinfitError
+        The fit has no usable covariance (singular or not positive semi-definite).
     """
     cov_u = fitted.internal_covariance()
     if cov_u is None:
-        raise StudyError("the fit has no covariance (singular information); run "
-                         "'kinfit sample' for posterior draws, or fix the unidentified "
-                         "parameters")
+        raise KinfitError("the fit has no covariance (singular information), so no band can "
+                          "be given; run 'kinfit sample' for posterior draws, or fix the "
+                          "unidentified parameters (vary = false)")
     space = fitted.model.space()
     u_hat = space.to_internal(fitted.theta)
     sym = 0.5 * (cov_u + cov_u.T)
-    u = rng.multivariate_normal(u_hat, sym, size=n, method="eigh")
+    lam, vec = np.linalg.eigh(sym)
+    if lam.min() < -1e-8 * max(abs(lam.max()), 1e-300):
+        raise KinfitError("the fit's covariance is not positive definite (unidentified "
+                          "parameters), so no band can be given; fix them (vary = false) or "
+                          "run 'kinfit sample' for posterior draws")
+    # round-off negatives to zero: a positive semi-definite factor L with L L^T = sym
+    factor = vec * np.sqrt(np.clip(lam, 0.0, None))
+    u = u_hat + rng.standard_normal((n, u_hat.size)) @ factor.T
     x = space.to_physical(u)
     return x[space.contains(x)]
 

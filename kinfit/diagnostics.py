@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 from numpy.typing import NDArray
 
 from kinfit.criteria import REGIMES, THRESHOLD_SOURCES, Thresholds
@@ -25,6 +26,7 @@ from kinfit.diagnose.next_runs import DIAMETER_RANGE, SPEED_RANGE, NextRun, next
 from kinfit.diagnose.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.errors import StudyError
 from kinfit.model import Model
+from kinfit.outputs import recorded_path
 from kinfit.results import FitResult
 from kinfit.study import Study
 
@@ -43,19 +45,17 @@ SOURCES = {
                            "smooth curve against one per level (Bates & Watts 1988; Draper & "
                            "Smith 1998); cubic regression spline chosen by BIC (Schwarz 1978)",
     "model_free_rates": "one-way analysis of variance (Fisher 1925)",
-    "model_free_logic": "no change with stirrer speed: film negligible, says nothing of eta; "
-                        "no change with particle size at fixed speed: film negligible and "
-                        "eta = 1 (common practice)",
+    "model_free_logic": "a rate the stirrer speed does not change rules out a film limit and "
+                        "leaves eta open; a rate the particle size does not change, at one "
+                        "speed, rules out film and pore limits alike (eta = 1) (common "
+                        "practice)",
     "falsified": "strong pore diffusion: E_app = (E + E_D)/2, apparent order (n + 1)/2 "
                  "(Weisz & Prater 1954; Satterfield 1970); film control: E_app near zero, "
                  "apparent first order",
-    "regime": "resistances in series at the run's initial conditions: film 1/(kc a_m), "
-              "reaction 1/k1, pore (1/eta - 1)/k1; the share above one half names the regime "
-              "(kinfit results contract)",
     "next_runs": "root find over stirrer speed and particle diameter with the fitted film law "
                  "and pellet model for Ca < 0.05/|n| and Psi below its limit",
     "carberry_times_order": THRESHOLD_SOURCES["carberry"],
-    "weisz_prater_radius": THRESHOLD_SOURCES["weisz_prater"],
+    "weisz_prater_eta": THRESHOLD_SOURCES["weisz_prater"],
     "alpha": "significance level of the model-free tests (0.05, common practice)",
 }
 
@@ -134,6 +134,24 @@ class Diagnosis:
             "units": _UNITS,
         })
 
+    def to_frame(self) -> pd.DataFrame:
+        """One row per run: the criteria, the resistance shares, the regime and whether the run
+        counts as intrinsic (SI; a rate in mol/(kg s), kc in m/s)."""
+        rows = []
+        for rid, r in self.runs.items():
+            shares = r.get("shares") or {}
+            rows.append({
+                "run": rid, "regime": r.get("regime"),
+                "thiele_modulus": r.get("thiele_modulus"),
+                "effectiveness_factor": r.get("effectiveness_factor"),
+                "weisz_prater": r.get("weisz_prater"), "mears": r.get("mears"),
+                "carberry": r.get("carberry"),
+                **{f"share_{k}": v for k, v in shares.items()},
+                "observed_rate [mol/(kg*s)]": r.get("observed_rate"),
+                "kc [m/s]": r.get("kc"), "intrinsic": rid in self.intrinsic_runs,
+            })
+        return pd.DataFrame(rows)
+
     def save(self, folder: str | Path) -> Path:
         """Write ``folder/diagnosis.json`` atomically; returns its path."""
         from kinfit.outputs import prepare_out_dir, write_json_atomic
@@ -176,8 +194,9 @@ class Diagnosis:
                          "are in diagnosis.json (runs.*.intervals)")
         th = self.thresholds
         lines.append(f"   thresholds: Carberry < {th['carberry']:.3g} (0.05/|n|), Weisz-Prater "
-                     f"< {th['weisz_prater']:.3g} (Psi_R < {th['weisz_prater_radius']:g} in the "
-                     f"L = Vp/Sp form), Mears < {th['mears']:g}, eta >= "
+                     f"< {th['weisz_prater']:.3g} (L = Vp/Sp; Psi_R < "
+                     f"{th['weisz_prater_radius']:.3g} with R = dp/2), Mears < {th['mears']:.3g}, "
+                     f"eta >= "
                      f"{th['effectiveness_factor']:g}")
         lines.append("   intrinsic runs: " + (", ".join(self.intrinsic_runs) if self.intrinsic_runs
                                               else "none"))
@@ -205,7 +224,7 @@ class Diagnosis:
         for rec in self.next_runs:
             sp = "any" if rec.stirrer_speed is None else f">= {rec.stirrer_speed * 60:.4g} rpm"
             dp = "none found" if rec.particle_diameter is None else (
-                f"<= {rec.particle_diameter * 1e6:.4g} um")
+                f"<= {rec.particle_diameter * 1e6:.4g} µm")
             lines.append(f"   {rec.temperature:.5g} K: stirrer speed {sp}, particles {dp}")
             lines.append(f"     {rec.note}")
         if self.notes:
@@ -270,12 +289,14 @@ def _threshold_block(thresholds: Thresholds, limits: Mapping[str, float], alpha:
     return {
         **limits,
         "carberry_times_order": thresholds.carberry,
-        "weisz_prater_radius": thresholds.weisz_prater_radius,
+        "weisz_prater_eta": thresholds.weisz_prater_eta,
         "geometry": geometry,
         "alpha": alpha,
-        "note": "carberry = carberry_times_order/|n| for the campaign's median order; "
-                "weisz_prater is the limit in the L = Vp/Sp normalisation, "
-                "weisz_prater_radius (L/R)^2 with R = dp/2",
+        "note": "carberry = carberry_times_order/|n| with each run's local order (the value "
+                "here is at the campaign's median order; runs.*.thresholds hold each run's); "
+                "weisz_prater is the limit in the L = Vp/Sp normalisation at which the "
+                "first-order eta of the geometry is weisz_prater_eta, weisz_prater_radius "
+                "the same limit with R = dp/2; mears uses R = dp/2 and the particle density",
     }
 
 
@@ -301,7 +322,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         A folder where ``kinfit sample`` wrote ``posterior_draws.csv``; its draws are used when
         ``posterior`` is not given (nothing happens when the file is absent).
     thresholds : Thresholds, optional
-        Criteria limits (default: Ca < 0.05/|n|, Psi_R < 0.3, Mears < 0.15, eta >= 0.95).
+        Criteria limits (default: Ca < 0.05/|n|, Psi_L at first-order eta 0.95, Mears 0.05 R/L,
+        eta >= 0.95).
     alpha : float
         Significance level of the model-free tests.
     n_draws : int
@@ -323,11 +345,11 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
     from kinfit.fitting import FitOptions, fit_model, main_spec
 
     if not (isinstance(alpha, int | float) and 0.0 < alpha < 1.0):
-        raise StudyError(f"the 'alpha' option of diagnose() must be a number in (0, 1). Got "
-                         f"{alpha!r} instead.")
+        raise StudyError(f"the significance level (--alpha, alpha) must be a number in (0, 1). "
+                         f"Got {alpha!r} instead.")
     if not isinstance(n_draws, int) or n_draws < 1:
-        raise StudyError(f"the 'n_draws' option of diagnose() must be an int >= 1. Got "
-                         f"{n_draws!r} instead.")
+        raise StudyError(f"the number of draws (--n-draws, n_draws) must be a whole number "
+                         f">= 1. Got {n_draws!r} instead.")
     for name, rng in (("speed_range", speed_range), ("diameter_range", diameter_range)):
         if not (len(rng) == 2 and 0.0 < rng[0] < rng[1] and np.isfinite(rng[1])):
             raise StudyError(f"the '{name}' option of diagnose() must be (low, high) with "
@@ -346,7 +368,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         if fit_result.study and fit_result.study != study.name:
             notes.append(f"the fit is of study '{fit_result.study}', not '{study.name}'")
         inputs = fit_result.manifest.get("inputs", {}) if fit_result.manifest else {}
-        changed = [Path(k).name for k, v in study.files.items()
+        recorded = {recorded_path(k, study.path): v for k, v in study.files.items()}
+        changed = [Path(k).name for k, v in recorded.items()
                    if k in inputs and inputs[k].get("sha256") not in (None, v)]
         if changed:
             notes.append(f"input file(s) {changed} changed since the fit; refit before relying "
@@ -359,7 +382,7 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
         path = Path(posterior_dir) / DRAWS_FILE
         if path.is_file():
             posterior = read_draws(path)
-            notes.append(f"posterior draws from {path}")
+            notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)
     per_run = run_diagnostics(model, theta, thresholds=thresholds, draws=draws, n_draws=n_draws,
                               seed=seed)
@@ -412,10 +435,13 @@ def add_diagnose_arguments(parser: argparse.ArgumentParser) -> None:
                         help="significance level of the model-free tests (default 0.05)")
     parser.add_argument("--carberry", type=float, default=0.05, metavar="LIMIT",
                         help="Carberry limit times |n| (default 0.05: Ca < 0.05/|n|)")
-    parser.add_argument("--weisz-prater", type=float, default=0.3, metavar="LIMIT",
-                        help="Weisz-Prater limit with R = dp/2 (default 0.3)")
+    parser.add_argument("--weisz-prater", type=float, default=None, metavar="LIMIT",
+                        help="Weisz-Prater limit with R = dp/2 for every shape (default: the "
+                             "value at which the first-order eta of the geometry is 0.95, "
+                             "0.767 for a sphere)")
     parser.add_argument("--mears", type=float, default=0.15, metavar="LIMIT",
-                        help="Mears limit (default 0.15)")
+                        help="Mears limit for a sphere, R = dp/2 (default 0.15; other shapes "
+                             "scale by (R/L)/3 for the same rate error)")
     parser.add_argument("--min-effectiveness", type=float, default=0.95, metavar="ETA",
                         help="smallest effectiveness factor counted as kinetic (default 0.95)")
     parser.add_argument("--max-speed", default="3000 rpm", metavar="SPEED",
@@ -499,7 +525,8 @@ def run_diagnose_command(args: argparse.Namespace) -> int:
     study = load_study(args.study)
     thresholds = Thresholds(
         carberry=_positive("carberry", args.carberry),
-        weisz_prater_radius=_positive("weisz-prater", args.weisz_prater),
+        weisz_prater_radius=(None if args.weisz_prater is None
+                             else _positive("weisz-prater", args.weisz_prater)),
         mears=_positive("mears", args.mears),
         effectiveness=_positive("min-effectiveness", args.min_effectiveness),
     )

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import difflib
+from collections.abc import Iterable
+
 __all__ = [
     "KinfitError",
     "StudyError",
@@ -10,6 +13,8 @@ __all__ = [
     "ConvergenceWarning",
     "IdentifiabilityWarning",
     "RegimeWarning",
+    "PlausibilityWarning",
+    "did_you_mean",
 ]
 
 
@@ -35,8 +40,8 @@ class StudyError(KinfitError, ValueError):
     Attributes
     ----------
     file, row, column, run : str or int or None
-        Where the problem is, when known. ``row`` counts data rows from 1 as a spreadsheet
-        shows them below the header line.
+        Where the problem is, when known. ``row`` is the line of the file as an editor or a
+        spreadsheet shows it, the header being row 1.
 
     Examples
     --------
@@ -131,3 +136,27 @@ class RegimeWarning(UserWarning):
     >>> RegimeWarning("run R03 is film-limited").args[0]
     'run R03 is film-limited'
     """
+
+
+class PlausibilityWarning(UserWarning):
+    """An input value that is possible but unusual enough to be a typo or a wrong unit.
+
+    Examples
+    --------
+    >>> PlausibilityWarning("particle density 12 g/cm^3 is above 10 g/cm^3").args[0]
+    'particle density 12 g/cm^3 is above 10 g/cm^3'
+    """
+
+
+def did_you_mean(word: str, choices: Iterable[str]) -> str:
+    """A hint naming the nearest valid name (difflib's ratio >= 0.6), or "".
+
+    Examples
+    --------
+    >>> did_you_mean("rate_lw", ["rate_law", "reference_temperature"])
+    " (did you mean 'rate_law'?)"
+    >>> did_you_mean("colour", ["rate_law"])
+    ''
+    """
+    close = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1)
+    return f" (did you mean '{close[0]}'?)" if close else ""

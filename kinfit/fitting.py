@@ -8,12 +8,15 @@ from __future__ import annotations
 from collections.abc import Sequence
 from concurrent.futures import Executor
 from dataclasses import dataclass, field
+from dataclasses import replace as dc_replace
 from typing import Any
 
+import lmfit
 import numpy as np
 
+from kinfit.candidates import candidate_defaults
 from kinfit.criteria import Thresholds
-from kinfit.errors import StudyError
+from kinfit.errors import StudyError, did_you_mean
 from kinfit.estimate.least_squares import Estimate, fit_problem
 from kinfit.estimate.uncertainty import (
     bootstrap,
@@ -22,8 +25,11 @@ from kinfit.estimate.uncertainty import (
     profile_intervals,
 )
 from kinfit.identifiability import identifiability_warnings
+from kinfit.lmfit_bridge import table_from_lmfit
 from kinfit.model import Model, ModelSpec
+from kinfit.model_checks import fit_adequacy
 from kinfit.outputs import manifest
+from kinfit.parameters import ParameterTable
 from kinfit.results import FitResult
 from kinfit.simulate import point_table, run_table
 from kinfit.study import Study
@@ -102,6 +108,7 @@ def _describe(spec: ModelSpec, study: Study) -> dict[str, Any]:
         "particle_density": spec.particle_density,
         "reactor": spec.reactor,
         "error_model": study.error_model,
+        "temperature_scaling": spec.scaling.describe(spec.film.name),
         "equations": {
             "rate": "r = k(T) (Cs/C_ref)^n, k(T) = k_ref exp(-Ea/R (1/T - 1/T_ref))"
             if law.name == "power" else f"rate law '{law.name}'",
@@ -192,6 +199,7 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
         "n_penalised": int(est.n_penalised), "penalty_reasons": list(est.penalty_reasons),
         "information_criteria": "Gaussian likelihood with the error scale estimated: "
         "-2 ln L = n [ln(2 pi SSE/n) + 1] (constant error); k = parameters + error scales",
+        "adequacy": fit_adequacy(model, study, est, runs, weights=problem.weights),
     }
     if prof is not None and prof.better_optimum:
         fit_block["message"] = (f"{est.message}; profiling found a lower SSE than the fit "
@@ -218,7 +226,7 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
         parameters=_parameters(model, est, lin, prof, boot), runs=runs, fit=fit_block,
         correlation={"names": list(est.names), "matrix": np.asarray(est.correlation).tolist()},
         identifiability=tuple(warnings_),
-        manifest=manifest(files=study.files, seed=options.seed, argv=argv,
+        manifest=manifest(files=study.files, seed=options.seed, argv=argv, base=study.path,
                           extra={"options": {"multistart": options.multistart,
                                              "profile": options.profile,
                                              "bootstrap": options.bootstrap,
@@ -230,8 +238,9 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
 def parse_candidate(text: str, study: Study) -> ModelSpec:
     """A candidate model written ``RATE_LAW[/FILM[/PELLET]]``, e.g. ``power/none/direct``.
 
-    Parameters the candidate needs come from the study's table; parameters it does not use
-    are left out.
+    Parameters the candidate needs come from the study's table, or from
+    :func:`kinfit.candidates.candidate_defaults` when the table lacks them; parameters it does
+    not use are left out. The label is the full ``RATE_LAW/FILM/PELLET``.
     """
     parts = [p.strip() for p in text.split("/")]
     if not 1 <= len(parts) <= 3 or not all(parts):
@@ -240,16 +249,24 @@ def parse_candidate(text: str, study: Study) -> ModelSpec:
     law = parts[0]
     film = parts[1] if len(parts) > 1 else None
     pellet = parts[2] if len(parts) > 2 else None
+    if law == "expression" and study.kinetics.get("rate_law") != "expression":
+        raise StudyError(f"candidate '{text}': an expression rate law needs its formula and "
+                         "its parameters, which a candidate name cannot carry; write it as the "
+                         "study's [kinetics] and compare the present law as the candidate")
     probe = ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
-                                 parameters=study.parameters, label=text, check=False)
+                                 parameters=study.parameters, check=False)
     needed = probe.parameter_names
-    missing = [n for n in needed if n not in study.parameters]
+    defaults = candidate_defaults(law, study)
+    missing = [n for n in needed if n not in study.parameters and n not in defaults]
     if missing:
         raise StudyError(f"candidate '{text}' needs parameter '{missing[0]}', which the study "
-                         f"lacks; add [parameters.{missing[0]}]")
-    keep = [n for n in study.parameters if n in needed or n in ("sigma", "sigma_rel")]
+                         f"lacks and which has no default; add [parameters.{missing[0]}]")
+    table = ParameterTable([study.parameters[n] if n in study.parameters else defaults[n]
+                            for n in needed]
+                           + [study.parameters[n] for n in ("sigma", "sigma_rel")
+                              if n in study.parameters])
     return ModelSpec.from_study(study, rate_law=law, film=film, pellet=pellet,
-                                parameters=study.parameters.subset(keep), label=text)
+                                parameters=table, label=probe.label)
 
 
 def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
@@ -264,7 +281,8 @@ def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
     extra = [n for n in study.parameters if n not in used]
     if extra:
         raise StudyError(
-            f"unknown parameter '{extra[0]}' for the model ({base.label}); the model uses "
+            f"unknown parameter '{extra[0]}'{did_you_mean(extra[0], used)} for the model "
+            f"({base.label}); the model uses "
             f"{sorted(base.parameter_names)} (and error scales sigma, sigma_rel)"
         )
     keep = [n for n in study.parameters if n in base.parameter_names or
@@ -273,8 +291,8 @@ def main_spec(study: Study, candidates: Sequence[str] = ()) -> ModelSpec:
 
 
 def fit(study: Study, options: FitOptions | None = None, *,
-        candidates: Sequence[str] | None = None, argv: Sequence[str] | None = None
-        ) -> FitResult:
+        candidates: Sequence[str] | None = None, argv: Sequence[str] | None = None,
+        parameters: lmfit.Parameters | None = None) -> FitResult:
     """Fit the study's model (and candidate models, compared by AICc and BIC).
 
     Parameters
@@ -284,12 +302,20 @@ def fit(study: Study, options: FitOptions | None = None, *,
     candidates : sequence of str, optional
         Further models written ``RATE_LAW[/FILM[/PELLET]]``; the study's own model is always
         the first row of the comparison.
+    argv : sequence of str, optional
+        Command line recorded in the manifest.
+    parameters : lmfit.Parameters, optional
+        Starting values, bounds and vary flags (SI) replacing the study's, matched by name
+        (for example ``previous.to_parameters()``); see
+        :func:`kinfit.lmfit_bridge.table_from_lmfit`.
 
     Returns
     -------
     FitResult
         The study's model, with ``comparison`` filled when candidates were given.
     """
+    if parameters is not None:
+        study = dc_replace(study, parameters=table_from_lmfit(study.parameters, parameters))
     candidates = list(candidates or study.fit.get("compare", []) or [])
     spec = main_spec(study, candidates)
     result = fit_model(spec, study, options, argv=argv)

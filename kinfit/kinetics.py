@@ -21,7 +21,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.constants import R as GAS_CONSTANT
 
-from kinfit.errors import ModelError, StudyError
+from kinfit.errors import ModelError, StudyError, did_you_mean
 from kinfit.expressions import CompiledExpression, compile_expression
 from kinfit.families import DeclaredParameters, Interval, check_limits, positive_option
 
@@ -176,7 +176,7 @@ def decorrelating_reference_temperature(
     References
     ----------
     Schwaab, M. & Pinto, J. C. (2007), Chem. Eng. Sci. 62, 2750-2764 (the result); the weighted
-    form is derived in REFERENCES.md section 7.
+    form is derived in Schwaab & Pinto 2007.
 
     Examples
     --------
@@ -664,14 +664,16 @@ def make_rate_law(name: str, **options: Any) -> RateLaw:
     cls = RATE_LAWS.get(name)
     if cls is None:
         raise StudyError(
-            f"[kinetics] rate_law '{name}' is not recognised; use one of {sorted(RATE_LAWS)}"
+            f"[kinetics] rate_law '{name}' is not recognised{did_you_mean(name, RATE_LAWS)}; "
+            f"use one of {sorted(RATE_LAWS)}"
         )
     params = inspect.signature(cls.__init__).parameters
     valid = [n for n, prm in params.items() if prm.kind is inspect.Parameter.KEYWORD_ONLY]
     unknown = sorted(set(options) - set(valid))
     if unknown:
         raise StudyError(
-            f"rate law '{name}': option(s) {unknown} not recognised; valid options are {valid}"
+            f"rate law '{name}': option(s) {unknown} not recognised"
+            f"{did_you_mean(unknown[0], valid)}; valid options are {valid}"
         )
     missing = [
         n for n in valid if params[n].default is inspect.Parameter.empty and n not in options

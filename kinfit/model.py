@@ -15,8 +15,9 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from kinfit.candidates import rate_law_options
 from kinfit.criteria import Criteria, Thresholds, compute_criteria
-from kinfit.errors import ModelError, StudyError
+from kinfit.errors import ModelError, StudyError, did_you_mean
 from kinfit.estimate.problem import ErrorModel, Problem, Space
 from kinfit.parameters import ParameterTable
 from kinfit.reactors import BatchGrid, batch_profiles, differential_rates
@@ -27,6 +28,7 @@ from kinfit.transport.surface import (
     observed_rate,
     observed_rate_value,
 )
+from kinfit.transport.temperature import TransportScaling
 
 __all__ = ["ModelSpec", "Model", "RunState", "ERROR_SCALE_NAMES"]
 
@@ -55,6 +57,8 @@ class ModelSpec:
         Dm, m^2/s, for ``tortuosity`` (else taken from ``fluid`` at each run's temperature).
     fluid : Fluid or None
         Solvent properties from the ``[fluid]`` section.
+    scaling : TransportScaling
+        Temperature scaling of De and kc (``temperature_scaling`` of [pellet] and [film]).
     reactor : {"batch", "differential"}
     parameters : ParameterTable
     label : str
@@ -72,6 +76,7 @@ class ModelSpec:
     molecular_diffusivity: float | None = None
     fluid: Any = None
     label: str = "model"
+    scaling: TransportScaling = field(default_factory=TransportScaling)
 
     @property
     def pellet_parameter(self) -> str | None:
@@ -104,9 +109,13 @@ class ModelSpec:
         kin = dict(study.kinetics)
         law_name = rate_law or kin["rate_law"]
         options = {k: v for k, v in kin.items() if k not in ("rate_law",)}
+        if law_name != kin["rate_law"]:  # a candidate law takes only the options it knows
+            accepted = rate_law_options(law_name)
+            options = {k: v for k, v in options.items() if k in accepted}
         law = make_rate_law(law_name, **options)
         film_sec = dict(study.film)
         study_film = film_sec.pop("model", "agitation")
+        film_scaling = film_sec.pop("temperature_scaling", "none")
         film_name = film or study_film
         if film_name != study_film:  # another film model: the study's options are not its own
             film_sec = {}
@@ -115,12 +124,15 @@ class ModelSpec:
             film_sec.setdefault("reference_diameter",
                                 _geomean([r.particle_diameter for r in study.runs]))
         fluid = None
+        T_ref = float(kin["reference_temperature"])
         if study.fluid:
             from kinfit.transport.properties import make_fluid
+            from kinfit.transport.temperature import with_scaled_diffusivity
 
             fluid = make_fluid(**dict(study.fluid))
             if film_name not in ("agitation", "none"):
-                film_sec.setdefault("fluid", fluid)
+                film_sec.setdefault("fluid", with_scaled_diffusivity(fluid, T_ref)
+                                    if film_scaling == "viscosity" else fluid)
         film_model = make_film_model(film_name, **film_sec)
         mode = pellet or study.pellet.get("diffusivity", "direct")
         if mode not in PELLET_MODES:
@@ -133,7 +145,12 @@ class ModelSpec:
             reactor="differential" if study.kind == "rate" else "batch",
             parameters=table, porosity=study.catalyst.get("porosity"),
             molecular_diffusivity=study.pellet.get("molecular_diffusivity"),
-            fluid=fluid, label=label or f"{law_name}+{film_name}+{mode}",
+            fluid=fluid, label=label or f"{law_name}/{film_name}/{mode}",
+            scaling=TransportScaling(
+                pellet=study.pellet.get("temperature_scaling", "none") if mode != "none"
+                else "none",
+                film=film_scaling if film_name != "none" else "none",
+                reference_temperature=T_ref, fluid=fluid),
         )
         if check:
             spec.validate()
@@ -152,7 +169,8 @@ class ModelSpec:
         extra = sorted(have - needed - set(ERROR_SCALE_NAMES))
         if extra:
             raise StudyError(
-                f"unknown parameter '{extra[0]}' for the model ({self.label}); the model uses "
+                f"unknown parameter '{extra[0]}'{did_you_mean(extra[0], needed)} for the model "
+                f"({self.label}); the model uses "
                 f"{sorted(needed)} (and error scales {list(ERROR_SCALE_NAMES)})"
             )
         if self.pellet == "tortuosity" and (not self.porosity or not (
@@ -209,6 +227,15 @@ class Model:
         self.C0 = col("initial_concentration")
         self.L = characteristic_length(spec.geometry, self.dp)
         self.a_m = external_area(spec.geometry, self.dp, spec.particle_density)
+        # temperature scaling of transport, per run (one factor each; see TransportScaling)
+        sc = spec.scaling
+        self.de_factor = sc.pellet_factor(self.T)
+        self.kc_factor = (sc.film_factor(self.T) if spec.film.name == "agitation"
+                          else np.ones(R))
+        # correlation films use the liquid's properties at the run's temperature, or at T_ref
+        # when scaling is off
+        self.T_film = (self.T if sc.film == "viscosity" or spec.film.name == "agitation"
+                       else np.full(R, sc.reference_temperature))
         groups = study.groups()
         self.group_of_run = np.array([groups.index(r.group or "default") for r in runs])
         if spec.reactor == "batch":
@@ -297,24 +324,33 @@ class Model:
         spec.rate_law.check(law_p)
         film_p = {n: val(values[n]) for n in spec.film.parameter_names}
         spec.film.check(film_p)
-        kc = spec.film.kc(run(self.N), run(self.dp), T, film_p)
+        kc = spec.film.kc(run(self.N), run(self.dp), run(self.T_film), film_p) * run(
+            self.kc_factor)
         conductance = kc * run(self.a_m)
-        De = None
+        De = self._effective_diffusivity(values, val, run)
+        pr = PelletRate(spec.rate_law, law_p, T, C0, De, run(self.L), spec.particle_density,
+                        spec.geometry)
+        return pr, conductance, kc, De
+
+    def _effective_diffusivity(self, values: Mapping[str, Array], val, run) -> Array | None:
+        """De at each run's temperature: the fitted De_ref (or eps Dm(T_ref)/tau) times the
+        run's temperature factor; None without a pellet model."""
+        spec = self.spec
         if spec.pellet == "direct":
             De = val(values["effective_diffusivity"])
             if np.any(~(De > 0)):
                 raise ModelError("parameter 'effective_diffusivity' must be > 0, got "
                                  f"{float(np.min(De)):g}")
-        elif spec.pellet == "tortuosity":
+            return De * run(self.de_factor)
+        if spec.pellet == "tortuosity":
             tau = val(values["tortuosity"])
             if np.any(~(tau > 0)):
                 raise ModelError(f"parameter 'tortuosity' must be > 0, got {float(np.min(tau)):g}")
+            T0 = spec.scaling.reference_temperature
             Dm = (spec.molecular_diffusivity if spec.molecular_diffusivity
-                  else spec.fluid.diffusivity(T))
-            De = float(spec.porosity or 0.0) * Dm / tau
-        pr = PelletRate(spec.rate_law, law_p, T, C0, De, run(self.L), spec.particle_density,
-                        spec.geometry)
-        return pr, conductance, kc, De
+                  else spec.fluid.diffusivity(T0))
+            return float(spec.porosity or 0.0) * Dm * run(self.de_factor) / tau
+        return None
 
     def point_states(self, theta_row: Array, concentration: Array) -> tuple[ObservedRate, Array]:
         """Transport state at every observation for one parameter set, at the given bulk
@@ -370,19 +406,12 @@ class Model:
         spec.film.check(film_p)
         T = self.T[None, :]
         k1 = law.rate(law.reference_concentration, T, law_p) / law.reference_concentration
-        conductance = spec.film.kc(self.N[None, :], self.dp[None, :], T, film_p) * self.a_m
+        conductance = spec.film.kc(self.N[None, :], self.dp[None, :], self.T_film[None, :],
+                                   film_p) * (self.kc_factor * self.a_m)
         if spec.pellet == "none":
             eta: Array | float = 1.0
         else:
-            if spec.pellet == "direct":
-                De = values["effective_diffusivity"]
-            else:
-                Dm = (spec.molecular_diffusivity if spec.molecular_diffusivity
-                      else spec.fluid.diffusivity(T))
-                De = float(spec.porosity or 0.0) * Dm / values["tortuosity"]
-            if np.any(~(De > 0)):
-                raise ModelError("parameter 'effective_diffusivity' must be > 0, got "
-                                 f"{float(np.min(De)):g}")
+            De = self._effective_diffusivity(values, lambda v: v, lambda a: np.asarray(a)[None, :])
             eta = eta_first_order(self.L * np.sqrt(spec.particle_density * k1 / De),
                                   spec.geometry)
         with np.errstate(divide="ignore"):

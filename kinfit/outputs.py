@@ -18,11 +18,69 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
+__all__ = ["CAUTIONS", "cautions_markdown", "recorded_path", "recorded_command", "atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
            "manifest", "to_plain", "prepare_out_dir"]
 
 _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint", "arviz-base",
               "arviz-stats")
+
+
+#: the caution every written output that feeds design or planning carries (report, audit.md,
+#: plan.md)
+CAUTIONS = (
+    "These results feed reactor design, and reactor design can hurt people. kinfit estimates "
+    "kinetic and transport parameters from the data it was given; it does not assess safety.",
+    "Scale-up, heat removal, exotherms and thermal runaway, pressure relief, and the hazards "
+    "of hydrogen and other flammable or toxic gases under pressure are outside this tool.",
+    "Rates affected by external mass transfer cannot be carried to another reactor, and no "
+    "prediction outside the fitted ranges of temperature, stirrer speed, particle size and "
+    "concentration is warranted (see the limits of validity).",
+    "Check every number before use, and defer to local codes, standards and licensed "
+    "engineering practice.",
+)
+
+
+def cautions_markdown() -> list[str]:
+    """The cautions as a Markdown section (lines)."""
+    return ["## Cautions", "", *(f"- {t}" for t in CAUTIONS)]
+
+
+def recorded_path(path: str | Path, base: str | Path | None = None) -> str:
+    """A path as outputs record it: relative to the folder of ``base`` (the study or claim
+    file; the working folder when ``base`` is None), in forward-slash form, so that no output
+    carries a machine's absolute path.
+
+    Examples
+    --------
+    >>> recorded_path("/data/campaign/runs.csv", "/data/campaign/study.toml")
+    'runs.csv'
+    >>> recorded_path("/data/out/results.json", "/data/campaign/study.toml")
+    '../out/results.json'
+    """
+    folder = Path(base).absolute().parent if base is not None else Path.cwd()
+    target = Path(os.path.abspath(Path(path) if Path(path).is_absolute() else Path.cwd() / path))
+    try:
+        rel = os.path.relpath(target, os.path.abspath(folder))
+    except ValueError:  # another drive (Windows): the file name is all that can be kept
+        rel = target.name
+    return Path(rel).as_posix()
+
+
+def recorded_command(argv: Sequence[str]) -> list[str]:
+    """The command line as outputs record it: the program as ``kinfit`` and every absolute
+    path argument (also in ``--opt=PATH`` form) relative to the working folder, which the
+    manifest records relative to the study file."""
+    parts = [str(a) for a in argv]
+    if parts and (Path(parts[0]).name in ("kinfit", "__main__.py", "cli.py")
+                  or Path(parts[0]).is_absolute()):
+        parts[0] = "kinfit"
+    out = parts[:1]
+    for a in parts[1:]:
+        key, eq, val = a.partition("=") if a.startswith("--") else ("", "", a)
+        if os.path.isabs(val):
+            val = recorded_path(val)
+        out.append(f"{key}{eq}{val}")
+    return out
 
 
 def prepare_out_dir(path: str | Path) -> Path:
@@ -122,9 +180,13 @@ def write_frame_atomic(path: str | Path, frame) -> Path:
 
 
 def manifest(*, files: Mapping[str, str] | None = None, seed: int | None = None,
-             argv: Sequence[str] | None = None, extra: Mapping[str, Any] | None = None
-             ) -> dict[str, Any]:
-    """The reproducibility manifest: input hashes, versions, seed and command line."""
+             argv: Sequence[str] | None = None, extra: Mapping[str, Any] | None = None,
+             base: str | Path | None = None) -> dict[str, Any]:
+    """The reproducibility manifest: input hashes, versions, seed and command line.
+
+    Input paths are recorded relative to the folder of ``base`` (the study or claim file),
+    the command line by :func:`recorded_command`, and the working folder it was run from
+    relative to ``base`` as ``folder``: no absolute path is written."""
     from kinfit import __version__
 
     versions: dict[str, str | None] = {"kinfit": __version__,
@@ -135,10 +197,11 @@ def manifest(*, files: Mapping[str, str] | None = None, seed: int | None = None,
         except metadata.PackageNotFoundError:
             versions[lib] = None
     out: dict[str, Any] = {
-        "inputs": {str(k): {"sha256": v} for k, v in (files or {}).items()},
+        "inputs": {recorded_path(k, base): {"sha256": v} for k, v in (files or {}).items()},
         "versions": versions,
         "seed": seed,
-        "command": list(argv if argv is not None else sys.argv),
+        "command": recorded_command(argv if argv is not None else sys.argv),
+        "folder": recorded_path(Path.cwd(), base) if base is not None else ".",
         "platform": platform.platform(),
     }
     if extra:

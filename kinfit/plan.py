@@ -45,6 +45,13 @@ from kinfit.criteria import Thresholds
 from kinfit.errors import StudyError
 from kinfit.model import Model
 from kinfit.results import FitResult
+from kinfit.sieves import (
+    ASTM_E11_APERTURES,
+    SPEED_STEP,
+    practical_speed,
+    sieve_fraction,
+    speed_grid,
+)
 from kinfit.study import FACTORS, Study
 
 __all__ = ["SPEED_RANGE", "DIAMETER_RANGE", "NOISE_Z", "CandidateGrid", "Plan",
@@ -59,7 +66,6 @@ DIAMETER_RANGE = (1e-6, 1e-2)
 #: two-sided 95 % normal quantile used for "differs beyond the noise"
 NOISE_Z = 1.959963984540054
 _BISECTIONS = 40
-_SPEED_GRID = 41
 
 
 def campaign_conditions(study: Study) -> list[Condition]:
@@ -163,34 +169,95 @@ def transport_tests(fitted: FittedModel, *, thresholds: Thresholds | None = None
     n_ca = (_bisect_log(carberry_met, *SPEED_RANGE, n, met_above=True) if has_film
             else np.full(n, SPEED_RANGE[0]))
     finite = d_wp[np.isfinite(d_wp)]
-    rec_dp = diameter if diameter is not None else (
-        float(np.min(finite)) if finite.size == n else None)
+    dp_limit = float(np.min(finite)) if finite.size == n else None
+    fraction = None
+    if diameter is not None:
+        rec_dp = diameter
+    elif dp_limit is not None:
+        # a sieve fraction whose coarsest particle still meets the limit
+        rec_dp, _, fraction = sieve_fraction(dp_limit)
+    else:
+        rec_dp = None
     n_ca_rec = np.full(n, np.nan)
     if rec_dp is not None and has_film:
         n_ca_rec = _bisect_log(lambda N: carberry_met(N, np.full(n, rec_dp)), *SPEED_RANGE, n,
                                met_above=True)
     above, below = _difference_speeds(fitted, conds)
+    size_up, size_down = _difference_diameters(fitted, conds)
     limits = crit.thresholds
     runs = {}
     for i, c in enumerate(conds):
         runs[c.id] = {
+            "size_test": _size_statement(c, size_up[i], size_down[i]),
+            "size_difference_above": _num(size_up[i]),
+            "size_difference_below": _num(size_down[i]),
+            "agitation_test": _agitation_statement(c, above[i], below[i],
+                                                   _campaign_speed(fitted)),
             "carberry": float(crit.carberry[i]), "carberry_limit": limits["carberry"],
             "weisz_prater": float(crit.weisz_prater[i]),
             "weisz_prater_limit": limits["weisz_prater"],
-            "speed_for_carberry": _num(n_ca[i]),
-            "speed_for_carberry_at_diameter": _num(n_ca_rec[i]),
+            "speed_for_carberry": _speed(n_ca[i]),
+            "speed_for_carberry_at_diameter": _speed(n_ca_rec[i]),
             "diameter_for_weisz_prater": _num(d_wp[i]),
             "speed_difference_above": _num(above[i]), "speed_difference_below": _num(below[i]),
         }
     rec_n = None
     if rec_dp is not None and np.all(np.isfinite(n_ca_rec)):
-        rec_n = float(np.max(n_ca_rec))
-    return {"runs": runs, "recommended": _recommendation(fitted, runs, rec_dp, rec_n,
-                                                         has_pellet, has_film)}
+        rec_n = practical_speed(float(np.max(n_ca_rec)), up=True)
+    rec = _recommendation(fitted, runs, rec_dp, rec_n, has_pellet, has_film)
+    rec["particle_fraction"] = fraction
+    rec["diameter_limit"] = dp_limit
+    if fraction is not None and rec["text"]:
+        rec["text"][0] = (f"particles of {display('particle_diameter', dp_limit, symbol=False)} "
+                          "or smaller keep every run below the Weisz-Prater limit (Weisz & "
+                          f"Prater 1954): use the {fraction}")
+    return {"runs": runs, "recommended": rec}
+
+
+def _fraction_label(d: float) -> str:
+    """The sieve fraction whose mean aperture is ``d``."""
+    a = ASTM_E11_APERTURES
+    for lo, hi in zip(a[:-1], a[1:], strict=True):
+        if abs(0.5 * (lo + hi) - d) <= 1e-9 * d:
+            return f"{lo * 1e6:.4g}-{hi * 1e6:.4g} um fraction"
+    return display("particle_diameter", d, symbol=False)
+
+
+def _size_statement(c: Condition, above: float, below: float) -> str:
+    """Whether a particle-size test at this run's conditions can show anything."""
+    own = display("particle_diameter", c.particle_diameter, symbol=False)
+    moves = [_fraction_label(v) for v in (below, above) if np.isfinite(v)]
+    if moves:
+        return (f"conclusive: the {' or the '.join(moves)} instead of {own} changes the "
+                "profile beyond the noise; at a fixed speed this covers film and pores "
+                "together")
+    a = ASTM_E11_APERTURES
+    return (f"not conclusive: no sieve fraction from {a[0] * 1e6:.0f} um to {a[-1] * 1e3:g} mm "
+            f"changes the profile beyond the noise at {own}, so equal profiles there would "
+            "prove nothing")
+
+
+def _agitation_statement(c: Condition, above: float, below: float, lowest: float) -> str:
+    """Whether a speed test at this run's conditions can show anything, in one sentence."""
+    own = display("stirrer_speed", c.stirrer_speed, symbol=False)
+    moves = [display("stirrer_speed", v, symbol=False) for v in (below, above)
+             if np.isfinite(v)]
+    if moves:
+        return (f"conclusive: a run at {' or '.join(moves)} instead of {own} changes the "
+                "profile beyond the noise, so a speed test here shows whether the film matters "
+                "(it leaves pore diffusion open)")
+    return (f"not conclusive: no speed from {display('stirrer_speed', lowest, symbol=False)} "
+            f"(the campaign's lowest) to {SPEED_RANGE[1] * 60:g} rpm changes the profile "
+            f"beyond the noise at {own}, so equal profiles there would prove nothing")
 
 
 def _campaign_speed(fitted: FittedModel) -> float:
     return float(min(r.stirrer_speed for r in fitted.study.runs))
+
+
+def _speed(v: float) -> float | None:
+    """A Carberry speed rounded up to the 50 rpm grid (faster is the safe side)."""
+    return practical_speed(float(v), up=True) if np.isfinite(v) else None
 
 
 def _num(v: float) -> float | None:
@@ -241,22 +308,44 @@ def _conclusive(runs: dict[str, dict[str, Any]]) -> list[str]:
 
 def _agitation_text(runs: dict[str, dict[str, Any]]) -> list[str]:
     diff = _conclusive(runs)
+    rest = [rid for rid in runs if rid not in diff]
     if diff:
-        return ["an agitation test is conclusive (profiles differ beyond the noise) for runs "
-                f"{', '.join(diff)} at the speeds listed per run"]
-    return ["no speed in range changes any run's profile beyond the noise: equal profiles at "
-            "two speeds would show only that kc does not matter there (they say nothing about "
-            "eta; common practice)"]
+        text = (f"an agitation test is conclusive (profiles differ beyond the noise at a "
+                f"practical speed) for {len(diff)} of {len(runs)} runs: {', '.join(diff)}")
+        if rest:
+            text += f"; not conclusive for {', '.join(rest)}"
+        return [text + " (per run below)"]
+    return ["no practical speed changes any run's profile beyond the noise: equal profiles at "
+            "two speeds would show only that kc does not matter there, and leave eta open "
+            "(common practice)"]
 
 
 def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple[Array, Array]:
-    """Per run, the nearest speeds above and below its own at which its predicted profile
+    """Per run, the nearest speeds above and below its own (on the 50 rpm grid, from the
+    campaign's lowest speed to the top of :data:`SPEED_RANGE`) at which its predicted profile
     differs from the one at its own speed by more than z sqrt(2) sigma."""
+    # practical speeds, not below the campaign's lowest (slower: the agitation law is
+    # extrapolated and the catalyst may settle)
+    grid = np.array(speed_grid(max(_campaign_speed(fitted), SPEED_STEP), SPEED_RANGE[1]))
+    return _differences(fitted, conds, "stirrer_speed", grid)
+
+
+def _difference_diameters(fitted: FittedModel, conds: Sequence[Condition]
+                          ) -> tuple[Array, Array]:
+    """Per run, the nearest sieve fractions (mean apertures of adjacent ASTM E11 sieves) above
+    and below its own size at which its predicted profile differs beyond the noise."""
+    a = np.array(ASTM_E11_APERTURES)
+    return _differences(fitted, conds, "particle_diameter", 0.5 * (a[:-1] + a[1:]))
+
+
+def _differences(fitted: FittedModel, conds: Sequence[Condition], factor: str, grid: Array
+                 ) -> tuple[Array, Array]:
+    """Nearest values of ``factor`` on ``grid``, above and below each run's own, at which the
+    run's predicted profile differs from its own by more than z sqrt(2) sigma (NaN: none)."""
     study = fitted.study
-    grid = np.geomspace(*SPEED_RANGE, _SPEED_GRID)
     n = len(conds)
-    copies = [replace(c, id=f"{c.id}@{j}", stirrer_speed=float(N))
-              for c in conds for j, N in enumerate(grid)]
+    copies = [replace(c, id=f"{c.id}@{j}", **{factor: float(v)})  # type: ignore[arg-type]
+              for c in conds for j, v in enumerate(grid)]
     own = [replace(c, id=f"{c.id}@own") for c in conds]
     times = None
     if study.kind == "profile":
@@ -264,7 +353,8 @@ def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple
         times = [t[i] for i in range(n) for _ in grid] + t
     model = fitted.model_at(copies + own, times=times)
     theta = fitted.theta_for(model, fitted.theta)
-    f = model.predict(theta)[0]
+    with np.errstate(all="ignore"):
+        f = model.predict(theta)[0]
     above, below = np.full(n, np.nan), np.full(n, np.nan)
     counts = [c.size for c in (times or [np.zeros(1)] * (len(copies) + n))]
     starts = np.concatenate([[0], np.cumsum(counts)])
@@ -277,8 +367,9 @@ def _difference_speeds(fitted: FittedModel, conds: Sequence[Condition]) -> tuple
         for j in range(g):
             k = i * g + j
             differs[j] = np.any(np.abs(f[starts[k]:starts[k + 1]] - ref) > noise)
-        up = np.flatnonzero(differs & (grid > c.stirrer_speed))
-        down = np.flatnonzero(differs & (grid < c.stirrer_speed))
+        own_value = getattr(c, factor)
+        up = np.flatnonzero(differs & (grid > own_value * (1 + 1e-9)))
+        down = np.flatnonzero(differs & (grid < own_value * (1 - 1e-9)))
         if up.size:
             above[i] = grid[up[0]]
         if down.size:
@@ -369,8 +460,9 @@ def _logdet(m: Array) -> Array:
 
 def d_optimal(m0: Array, candidates: Array, k: int, *, max_passes: int = 20
               ) -> tuple[list[int], float]:
-    """k candidates (repeats allowed) maximising ``log det(m0 + sum M_c)``: greedy, then
-    Fedorov exchanges until no single exchange improves it.
+    """k distinct candidates maximising ``log det(m0 + sum M_c)``: greedy, then Fedorov
+    exchanges until no single exchange improves it. A run proposed twice would be a replicate,
+    which a plan asks for explicitly, not by accident.
 
     Parameters
     ----------
@@ -393,10 +485,15 @@ def d_optimal(m0: Array, candidates: Array, k: int, *, max_passes: int = 20
     """
     if k < 1:
         raise StudyError(f"the number of runs to plan must be >= 1. Got {k!r} instead.")
+    if k > candidates.shape[0]:
+        raise StudyError(f"{k} runs asked for but only {candidates.shape[0]} distinct candidate "
+                         "conditions; ask for fewer runs or give more levels")
     chosen: list[int] = []
     m = m0.copy()
     for _ in range(k):
-        j = int(np.argmax(_logdet(m[None] + candidates)))
+        ld = _logdet(m[None] + candidates)
+        ld[chosen] = -np.inf
+        j = int(np.argmax(ld))
         chosen.append(j)
         m = m + candidates[j]
     current = float(_logdet(m))
@@ -405,6 +502,7 @@ def d_optimal(m0: Array, candidates: Array, k: int, *, max_passes: int = 20
         for i in range(k):
             rest = m - candidates[chosen[i]]
             ld = _logdet(rest[None] + candidates)
+            ld[[c for n_, c in enumerate(chosen) if n_ != i]] = -np.inf
             j = int(np.argmax(ld))
             if ld[j] > current + 1e-10 * max(1.0, abs(current)):
                 chosen[i], m, current, improved = j, rest + candidates[j], float(ld[j]), True
@@ -473,8 +571,8 @@ class Plan:
         lines = [f"# Next runs for study '{self.study}'", "", "## Transport tests", ""]
         lines += [f"- {t}" for t in self.tests["recommended"]["text"]]
         lines += ["", "| run | Carberry (limit) | N for Carberry | Weisz-Prater (limit) | "
-                  "dp for Weisz-Prater | N differing beyond noise (below / above) |",
-                  "|---|---|---|---|---|---|"]
+                  "dp for Weisz-Prater | N differing beyond noise (below / above) | "
+                  "agitation test | size test |", "|---|---|---|---|---|---|---|---|"]
         for rid, r in self.tests["runs"].items():
             def sp(v: float | None) -> str:
                 return "none" if v is None else display("stirrer_speed", v, symbol=False)
@@ -484,7 +582,10 @@ class Plan:
                 f"{sp(r['speed_for_carberry'])} | {r['weisz_prater']:.3g} "
                 f"({r['weisz_prater_limit']:.3g}) | "
                 f"{'none' if dpw is None else display('particle_diameter', dpw, symbol=False)}"
-                f" | {sp(r['speed_difference_below'])} / {sp(r['speed_difference_above'])} |")
+                f" | {sp(r['speed_difference_below'])} / {sp(r['speed_difference_above'])} | "
+                f"{r['agitation_test'].split(':')[0]} | {r['size_test'].split(':')[0]} |")
+        lines += [""] + [f"- {rid}: agitation test {r['agitation_test']}; size test "
+                         f"{r['size_test']}" for rid, r in self.tests["runs"].items()]
         rnd = d["random"]
         lines += ["", f"## D-optimal choice of {len(self.chosen)} run(s) from "
                   f"{d['candidates']} candidates", "",
@@ -501,7 +602,10 @@ class Plan:
                          f"{_hw(s['half_width_before'])} | {_hw(s['half_width_after'])} | "
                          f"{ratio} | {_hw(s['half_width_random'])} |")
         lines += ["", "Expected half-widths assume the estimates and the noise stay as fitted "
-                  "(linearised information; Bates & Watts 1988)."]
+                  "(linearised information; Bates & Watts 1988).", ""]
+        from kinfit.outputs import cautions_markdown
+
+        lines += cautions_markdown()
         return "\n".join(lines)
 
     def save(self, folder: str | Path) -> Path:
@@ -557,8 +661,8 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
     Plan
     """
     if not isinstance(n_runs, int) or n_runs < 1:
-        raise StudyError(f"the 'n_runs' option of plan_runs() must be an int >= 1. Got "
-                         f"{n_runs!r} instead.")
+        raise StudyError(f"the number of runs to plan (--runs, n_runs) must be a whole number "
+                         f">= 1. Got {n_runs!r} instead.")
     fitted = load_fitted(study, fit)
     tests = transport_tests(fitted, thresholds=thresholds)
     rec = tests["recommended"]
@@ -604,7 +708,8 @@ def plan_runs(study: Study, fit: FitResult, *, n_runs: int = 4,
                                "transformed parameters)",
                 "criterion": "D-optimal: maximise log det(M0 + sum M_c), greedy then Fedorov "
                              "exchange (Fedorov 1972; Atkinson & Donev 1992)"},
-        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None),
+        shrinkage=shrink, manifest=manifest(files=study.files, seed=seed, argv=None,
+                                                     base=study.path),
     )
 
 
@@ -656,7 +761,7 @@ def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run_plan_command(args: argparse.Namespace) -> int:
     """Run ``kinfit plan``; returns the exit code."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
     from kinfit.study import load_study
 
     study = load_study(args.study)
@@ -674,7 +779,7 @@ def run_plan_command(args: argparse.Namespace) -> int:
         base = default_grid(study, speed=rec["stirrer_speed"], diameter=rec["particle_diameter"])
         grid = replace(base, **{k: _levels(v) for k, v in given.items() if v is not None})
     plan = plan_runs(study, fit, n_runs=args.runs, grid=grid, seed=args.seed)
-    plan = replace(plan, manifest={**plan.manifest, "command": list(sys.argv)})
+    plan = replace(plan, manifest={**plan.manifest, "command": recorded_command(sys.argv)})
     out = Path(args.out) if args.out is not None else Path(args.fit) / "plan"
     prepare_out_dir(out)
     plan.save(out)

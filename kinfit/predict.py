@@ -1,9 +1,11 @@
 """Predictions at new conditions from a fitted campaign: concentration profiles (batch) or
 observed rates (rate campaign) at other particle sizes, stirrer speeds, temperatures, loadings
 and concentrations, with 90 % bands from the posterior draws or, without them, from the
-linearised covariance; the effectiveness factor and the regime at each condition; a warning for
-every factor outside the campaign's range, and a refusal to carry a film coefficient that was
-fitted only to film-limited data to other speeds or sizes.
+linearised covariance; the effectiveness factor and the regime at each condition; the
+just-suspended check of slurry conditions (Zwietering 1958). A condition outside the
+campaign's range of a factor, or one that would carry a film coefficient fitted only to
+film-limited data elsewhere, is refused unless ``extrapolate=True`` (``--extrapolate``), and
+every output then marks it as extrapolated.
 
 New conditions become :class:`~kinfit.study.Run` records of a study built with
 ``dataclasses.replace``, so the same compiled, vectorised physics (:class:`~kinfit.model.Model`)
@@ -58,6 +60,7 @@ from kinfit.errors import KinfitError, RegimeWarning, StudyError
 from kinfit.model import Model
 from kinfit.results import FitResult
 from kinfit.study import FACTORS, Study
+from kinfit.suspension import suspension_check
 
 __all__ = [
     "Condition", "FittedModel", "Prediction", "ExtrapolationRefused", "FACTOR_KINDS",
@@ -78,7 +81,8 @@ FILM_INFORMATION_SHARE = 0.9
 
 class ExtrapolationRefused(KinfitError):
     """A prediction that would carry a film coefficient fitted only to film-limited data to
-    another stirrer speed or particle size (pass ``allow_extrapolation=True`` to override).
+    another stirrer speed or particle size, or a condition outside the campaign's range of a
+    factor (pass ``extrapolate=True`` to override).
 
     Attributes
     ----------
@@ -152,6 +156,68 @@ def film_information(fitted: FittedModel) -> dict[str, Any]:
     return out
 
 
+#: why a prediction outside the campaign's range of each factor is not warranted
+_OUTSIDE_WHY = {
+    "temperature": "the rate constant's Arrhenius law and the transport properties were fitted "
+                   "only inside that range; beyond it the mechanism, an adsorption step or a "
+                   "new transport limit may change the apparent activation energy",
+    "stirrer_speed": "the agitation law of the film coefficient was fitted only inside that "
+                     "range; beyond it the film coefficient (and, at low speed, the suspension "
+                     "of the catalyst) is not known",
+    "particle_diameter": "the film coefficient's size law and the pore-diffusion length were "
+                         "fitted only inside that range; beyond it the effectiveness factor "
+                         "and the film resistance are extrapolated",
+    "catalyst_loading": "the campaign measured the rate per catalyst mass only inside that "
+                        "range; beyond it gas-liquid transfer or suspension may limit the rate",
+    "initial_concentration": "the rate law's order was fitted only inside that range; beyond "
+                             "it saturation or inhibition may bend the rate",
+}
+
+
+def _film_why(film: Mapping[str, Any]) -> str:
+    return ("every run of the campaign was film-limited" if film["all_film"] else
+            f"{film['film_share']:.0%} of the information about kc_ref came from "
+            "film-limited runs")
+
+
+def _refusal_reasons(c: Condition, outside: Sequence[Mapping[str, Any]],
+                     film: Mapping[str, Any]) -> list[str]:
+    """One sentence per reason not to trust a prediction at ``c``: a factor outside the
+    campaign, and a film coefficient known only from film-limited runs carried elsewhere."""
+    out = []
+    for o in outside:
+        f_ = o["factor"]
+        out.append(f"condition '{c.id}': {display(f_, o['value'])} lies outside the campaign's "
+                   f"{display(f_, o['min'], symbol=False)} to "
+                   f"{display(f_, o['max'], symbol=False)}: {_OUTSIDE_WHY[f_]}")
+    film_factors = [o["factor"] for o in outside
+                    if o["factor"] in ("stirrer_speed", "particle_diameter")]
+    if film["film_only"] and film_factors:
+        out.append(f"condition '{c.id}': {' and '.join(film_factors)} outside the campaign, "
+                   f"but {_film_why(film)}, so the film coefficient (and the kinetics behind "
+                   "it) is not known at other speeds or sizes")
+    return out
+
+
+def _check_covariance(fitted: FittedModel, film: Mapping[str, Any]) -> None:
+    """Refuse bands from a covariance that is not positive semi-definite (unidentified
+    parameters), saying why in the trade's terms."""
+    cov = fitted.internal_covariance()
+    if cov is None:
+        return
+    sym = 0.5 * (cov + cov.T)
+    lam = np.linalg.eigvalsh(sym) if np.all(np.isfinite(sym)) else np.array([-1.0])
+    if lam.min() >= -1e-8 * max(abs(lam.max()), 1e-300):
+        return
+    cause = (f"{_film_why(film)}, so the film hides the kinetics and the parameters behind it "
+             "are not identified" if film["film_only"] else
+             "some parameters are not identified by the data (see the identifiability notes "
+             "of 'kinfit fit')")
+    raise KinfitError(f"the fit's covariance is not positive definite: {cause}; no band can "
+                      "be given; fix the unidentified parameters (vary = false) or run "
+                      "'kinfit sample' for posterior draws")
+
+
 # ------------------------------------------------------------------------------ prediction
 @dataclass(frozen=True)
 class Prediction:
@@ -175,6 +241,9 @@ class Prediction:
     film : dict
         :func:`film_information` of the fit.
     warnings : tuple of str
+    extrapolated : bool
+        Some condition was predicted outside what the campaign warrants (``extrapolate=True``);
+        every output then says so.
     """
 
     study: str
@@ -186,6 +255,7 @@ class Prediction:
     film: Mapping[str, Any]
     warnings: tuple[str, ...] = ()
     manifest: Mapping[str, Any] = field(default_factory=dict)
+    extrapolated: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of predictions.json."""
@@ -193,6 +263,7 @@ class Prediction:
 
         return to_plain({
             "kinfit_predictions": 1, "study": self.study, "kind": self.kind,
+            "extrapolated": self.extrapolated,
             "band": self.band, "film_information": self.film,
             "conditions": self.summary, "warnings": list(self.warnings),
             "units": {"temperature": "K", "stirrer_speed": "1/s (revolutions per second)",
@@ -216,23 +287,26 @@ class Prediction:
         lines = [f"predictions for study '{self.study}': {len(self.conditions)} condition(s); "
                  f"{self.band['level']:.0%} bands from {self.band['source']} "
                  f"({self.band['draws']} draws)"]
+        if self.extrapolated:
+            lines.append("EXTRAPOLATED: some conditions lie where the campaign does not warrant "
+                         "a prediction (--extrapolate); their numbers are not backed by data")
         for c in self.conditions:
             s = self.summary[c.id]
             r = s["initial_rate"]
             eta = s["effectiveness_factor"]
             lines.append("")
             lines.append(f"  {c.id}: {c.label()}"
-                         + (f"  (defaults: {', '.join(c.defaulted)})" if c.defaulted else ""))
+                         + (f"  (defaults: {', '.join(c.defaulted)})" if c.defaulted else "")
+                         + ("  [EXTRAPOLATED]" if s["extrapolated_on_request"] else ""))
             lines.append(f"    initial rate {r['estimate']:.4g} mol/(kg s) "
                          f"[{r[lo]:.4g}, {r[hi]:.4g}]; eta {eta['estimate']:.3f} "
                          f"[{eta[lo]:.3f}, {eta[hi]:.3f}]; regime {s['regime']}")
-            for o in s["outside_range"]:
-                f_ = o["factor"]
-                lines.append(f"    outside the campaign: {display(f_, o['value'])} (campaign "
-                             f"{display(f_, o['min'], symbol=False)} to "
-                             f"{display(f_, o['max'], symbol=False)})")
-        for w in self.warnings:
-            lines.append(f"  warning: {w}")
+            susp = s.get("suspension")
+            if susp:
+                m = susp["message"]
+                lines.append(f"    {m}" if m.startswith(("suspension", "not a slurry"))
+                             else f"    suspension: {m}")
+        # the reasons and warnings themselves go to stderr once (warnings.warn), not here
         return "\n".join(lines)
 
 
@@ -244,7 +318,7 @@ def _quantile_names(level: float) -> tuple[str, str]:
 def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condition], *,
                        fit_dir: str | Path | None = None, times: Array | None = None,
                        n_draws: int = 400, seed: int | None = None, level: float = 0.90,
-                       allow_extrapolation: bool = False,
+                       extrapolate: bool = False,
                        thresholds: Thresholds | None = None) -> Prediction:
     """Predict the study's model at new conditions with bands.
 
@@ -267,9 +341,10 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
         Seed of the draws.
     level : float
         Central band probability (default 0.90).
-    allow_extrapolation : bool
-        Predict even where a film coefficient fitted only to film-limited data would be
-        carried to another stirrer speed or particle size.
+    extrapolate : bool
+        Predict even outside the campaign's range of a factor, or where a film coefficient
+        fitted only to film-limited data would be carried elsewhere; every output then marks
+        the result as extrapolated.
     thresholds : Thresholds, optional
         Criteria limits of the per-condition table.
 
@@ -280,59 +355,67 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     Raises
     ------
     ExtrapolationRefused
-        See ``allow_extrapolation``.
+        A condition outside the campaign's range of a factor, or a film coefficient fitted
+        only to film-limited runs carried elsewhere, without ``extrapolate``.
+    KinfitError
+        The fit's uncertainty gives no band (a covariance that is not positive definite).
     StudyError
         Bad conditions, options or fit.
 
     Warns
     -----
     RegimeWarning
-        A condition outside the campaign's range of a factor.
+        Once per reason of an extrapolation made on request, and for a slurry condition
+        below the just-suspended speed (Zwietering 1958, :mod:`kinfit.suspension`).
     """
     if not isinstance(n_draws, int) or n_draws < 20:
-        raise StudyError(f"the 'n_draws' option of predict_conditions() must be an int >= 20. "
-                         f"Got {n_draws!r} instead.")
+        raise StudyError(f"the number of parameter draws (--draws, n_draws) must be a whole "
+                         f"number >= 20. Got {n_draws!r} instead.")
     if not 0.5 <= level < 1:
-        raise StudyError(f"the 'level' option must lie in [0.5, 1). Got {level!r} instead.")
+        raise StudyError(f"the band level must lie in [0.5, 1). Got {level!r} instead.")
     conditions = tuple(conditions)
     _unique_ids(conditions)
     fitted = load_fitted(study, fit)
-    notes: list[str] = []
     film = film_information(fitted)
-    refused: list[str] = []
-    refused_ids: set[str] = set()
     outside = {c.id: outside_ranges(study, c) for c in conditions}
-    for c in conditions:
-        for o in outside[c.id]:
-            f_ = o["factor"]
-            text = (f"condition '{c.id}': {f_} {display(f_, o['value'], symbol=False)} lies "
-                    f"outside the campaign's range {display(f_, o['min'], symbol=False)} to "
-                    f"{display(f_, o['max'], symbol=False)}: the prediction extrapolates the "
-                    "fitted laws")
-            notes.append(text)
-            warnings.warn(text, RegimeWarning, stacklevel=2)
-        film_factors = [o for o in outside[c.id]
-                        if o["factor"] in ("stirrer_speed", "particle_diameter")]
-        if film["film_only"] and film_factors:
-            why = ("every run of the campaign was film-limited" if film["all_film"] else
-                   f"{film['film_share']:.0%} of the information about kc_ref came from "
-                   "film-limited runs")
-            refused_ids.add(c.id)
-            refused.append(
-                f"condition '{c.id}': {', '.join(o['factor'] for o in film_factors)} outside "
-                f"the campaign, but {why}, so the film coefficient (and the kinetics behind "
-                "it) is not known at other speeds or sizes; pass --allow-extrapolation "
-                "(allow_extrapolation=True) to predict anyway")
-    if refused and not allow_extrapolation:
+    reasons = {c.id: _refusal_reasons(c, outside[c.id], film) for c in conditions}
+    if film["film_only"]:
+        # inside the ranges, a condition the film does not control leans on kinetics that
+        # film-limited runs measure only as a lower bound
+        from kinfit.simulate import run_table
+
+        probe = fitted.model_at(conditions, times=None if study.kind == "rate"
+                                else np.array([0.0, 1.0]))
+        with np.errstate(all="ignore"):
+            table = run_table(probe, fitted.theta_for(probe, fitted.theta)[0])
+        for c in conditions:
+            if table[c.id]["regime"] != "film":
+                reasons[c.id].append(
+                    f"condition '{c.id}': the film coefficient was fitted from film-limited "
+                    f"runs ({_film_why(film)}), so the intrinsic rate is known only as a lower "
+                    f"bound, yet at this condition the regime would be "
+                    f"'{table[c.id]['regime']}' and the prediction rests on that rate")
+    refused = [r for c in conditions for r in reasons[c.id]]
+    if refused and not extrapolate:
         raise ExtrapolationRefused(refused)
-    if refused:
-        notes.extend(f"extrapolated on request: {r}" for r in refused)
+    extrapolated = {c.id for c in conditions if reasons[c.id]}
+    notes = [f"EXTRAPOLATED on request: {r}" for r in refused]
+    suspension = {c.id: suspension_check(study, temperature=c.temperature,
+                                         stirrer_speed=c.stirrer_speed,
+                                         particle_diameter=c.particle_diameter,
+                                         catalyst_loading=c.catalyst_loading)
+                  for c in conditions}
+    notes += [f"condition '{cid}': {s.message}" for cid, s in suspension.items()
+              if s.suspended is False]
+    for text in notes:
+        warnings.warn(text, RegimeWarning, stacklevel=2)
     if study.kind == "profile":
         if times is None:
             t_max = max(float(r.times.max()) for r in study.runs if r.times.size)
             times = np.linspace(0.0, t_max, 21)
         times = np.asarray(times, dtype=float)
     model = fitted.model_at(conditions, times=times)
+    _check_covariance(fitted, film)
     theta = fitted.theta_for(model, fitted.theta)[0]
     rng = np.random.default_rng(seed)
     draws, source = None, "covariance"
@@ -349,14 +432,20 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     f, ok = _predict_rows(model, rows)
     n_failed = int(np.sum(~ok))
     if np.sum(ok) < 10:
-        raise StudyError(f"only {int(np.sum(ok))} of {rows.shape[0]} parameter draws could "
-                         "be evaluated at these conditions; the bands cannot be computed")
+        raise KinfitError(f"only {int(np.sum(ok))} of {rows.shape[0]} parameter draws could be "
+                          "evaluated at these conditions, so no band can be given; the fit's "
+                          "uncertainty is too wide here (unidentified parameters: see the "
+                          "identifiability notes of 'kinfit fit')")
     lo_name, hi_name = _quantile_names(level)
     alpha = (1 - level) / 2
     q = np.quantile(f[ok], [alpha, 0.5, 1 - alpha], axis=0)
     frame = _frame(model, conditions, f_hat[0], q, lo_name, hi_name)
-    summary = _summaries(model, theta, rows[ok], conditions, outside, refused_ids, alpha,
+    summary = _summaries(model, theta, rows[ok], conditions, outside, extrapolated, alpha,
                          lo_name, hi_name, thresholds)
+    for c in conditions:
+        summary[c.id]["extrapolation_reasons"] = list(reasons[c.id])
+        summary[c.id]["suspension"] = suspension[c.id].to_dict()
+    frame.insert(1, "extrapolated", [i in extrapolated for i in frame["condition"]])
     from kinfit.outputs import manifest
 
     return Prediction(
@@ -364,8 +453,8 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
         band={"source": source, "level": level, "draws": int(rows.shape[0]),
               "failed": n_failed, "seed": seed,
               "meaning": f"central {level:.0%} of the mean response over parameter draws"},
-        film=film, warnings=tuple(notes),
-        manifest=manifest(files=study.files, seed=seed, argv=None),
+        film=film, warnings=tuple(notes), extrapolated=bool(extrapolated),
+        manifest=manifest(files=study.files, seed=seed, argv=None, base=study.path),
     )
 
 
@@ -454,16 +543,17 @@ def add_predict_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--draws", type=int, default=400,
                         help="parameter draws for the bands (default 400)")
     parser.add_argument("--seed", type=int, default=None, help="seed of the draws")
-    parser.add_argument("--allow-extrapolation", action="store_true",
-                        help="predict even when a film coefficient fitted only to film-limited "
-                             "data would be carried to another stirrer speed or particle size")
+    parser.add_argument("--extrapolate", action="store_true",
+                        help="predict even outside the campaign's ranges or where a film "
+                             "coefficient fitted only to film-limited data would be carried "
+                             "elsewhere; every output is then marked as extrapolated")
     parser.add_argument("--out", type=Path, default=None,
                         help="output folder (default: FIT/predict)")
 
 
 def run_predict_command(args: argparse.Namespace) -> int:
     """Run ``kinfit predict``; returns the exit code (1 when the extrapolation is refused)."""
-    from kinfit.outputs import prepare_out_dir
+    from kinfit.outputs import prepare_out_dir, recorded_command
     from kinfit.study import load_study
 
     study = load_study(args.study)
@@ -479,12 +569,14 @@ def run_predict_command(args: argparse.Namespace) -> int:
     try:
         pred = predict_conditions(study, fit, conditions, fit_dir=args.fit, times=times,
                                   n_draws=args.draws, seed=args.seed,
-                                  allow_extrapolation=args.allow_extrapolation)
+                                  extrapolate=args.extrapolate)
     except ExtrapolationRefused as exc:
         for reason in exc.reasons:
             print(f"kinfit: refused: {reason}", file=sys.stderr)
+        print("kinfit: pass --extrapolate to predict anyway; every output is then marked as "
+              "extrapolated", file=sys.stderr)
         return 1
-    pred = replace(pred, manifest={**pred.manifest, "command": list(sys.argv)})
+    pred = replace(pred, manifest={**pred.manifest, "command": recorded_command(sys.argv)})
     prepare_out_dir(out)
     pred.save(out)
     print(pred.report())

@@ -1,4 +1,4 @@
-"""Immutable, JSON-serialisable fit results: the results contract of DESIGN.md.
+"""Immutable, JSON-serialisable fit results: kinfit's results contract (README).
 
 A :class:`FitResult` holds plain data only (dicts of floats and strings, and a predictions
 table); it never re-runs a computation. ``to_dict()`` is field for field what
@@ -15,14 +15,24 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import lmfit
 import numpy as np
 import pandas as pd
 
 from kinfit.errors import StudyError
+from kinfit.lmfit_bridge import to_lmfit_parameters
 
-__all__ = ["FitResult", "RESULTS_VERSION"]
+__all__ = ["FitResult", "Estimates", "RESULTS_VERSION"]
 
 RESULTS_VERSION = 1
+
+
+class Estimates(dict):  # type: ignore[type-arg]
+    """Parameter name -> estimate (SI); calling it returns a plain copy, so code written for
+    the former method ``FitResult.estimates()`` keeps working."""
+
+    def __call__(self) -> dict[str, float]:
+        return dict(self)
 
 
 @dataclass(frozen=True)
@@ -72,9 +82,16 @@ class FitResult:
         """Whether the optimiser converged."""
         return bool(self.fit.get("converged"))
 
-    def estimates(self) -> dict[str, float]:
-        """Parameter (column) name -> estimate."""
-        return {k: float(v["estimate"]) for k, v in self.parameters.items()}
+    @property
+    def estimates(self) -> Estimates:
+        """Parameter (column) name -> estimate (SI). ``result.estimates()``, the former method
+        form, still works and returns a plain dict."""
+        return Estimates({k: float(v["estimate"]) for k, v in self.parameters.items()})
+
+    def to_parameters(self) -> lmfit.Parameters:
+        """The estimates as :class:`lmfit.Parameters`: values, bounds, vary flags, standard
+        errors (``stderr``) and correlations (``correl``), SI units in ``user_data``."""
+        return to_lmfit_parameters(self.parameters, self.correlation)
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-Python content of results.json."""

@@ -6,6 +6,7 @@ records, the one object the rest of kinfit receives.
 from __future__ import annotations
 
 import hashlib
+import io
 import tomllib
 import zipfile
 from collections.abc import Mapping
@@ -17,11 +18,13 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.errors import StudyError
+from kinfit.errors import StudyError, did_you_mean
 from kinfit.parameters import ParameterTable, parameter_table_from_toml
+from kinfit.plausibility import check_density, check_runs, uninformative_runs
 from kinfit.units import parse_header, parse_quantity, printable, to_si
 
-__all__ = ["Run", "Study", "load_study", "FACTORS", "comparison_sets", "ComparisonSet"]
+__all__ = ["Run", "Study", "load_study", "FACTORS", "comparison_sets", "ComparisonSet",
+           "read_table", "table_line"]
 
 #: runs-table columns: name -> (quantity kind, required, must be strictly positive)
 RUN_COLUMNS: dict[str, tuple[str, bool, bool]] = {
@@ -97,6 +100,18 @@ class Run:
     group: str | None = None
     volume: float | None = None
     note: str = ""
+
+    def __repr__(self) -> str:
+        """The run in the lab's units, e.g. ``Run('R01', T=40 degC, N=300 rpm, dp=10 um, w=1
+        g/L, C0=0.8 mol/L, 15 points)``; the fields themselves are SI."""
+        parts = [f"T={self.temperature - 273.15:.4g} degC",
+                 f"N={self.stirrer_speed * 60:.4g} rpm",
+                 f"dp={self.particle_diameter * 1e6:.4g} um",
+                 f"w={self.catalyst_loading:.4g} g/L",
+                 f"C0={self.initial_concentration / 1000:.4g} mol/L"]
+        if self.group:
+            parts.append(f"group={self.group!r}")
+        return f"Run({self.id!r}, {', '.join(parts)}, {self.n_obs} points)"
 
     @property
     def n_obs(self) -> int:
@@ -227,13 +242,14 @@ def comparison_sets(study: Study, factor: str, *, rtol: float = 0.01) -> list[Co
     """Sets of runs that differ only in ``factor``: the classic transport tests.
 
     Runs are grouped by the other factors (equal within ``rtol`` relative); a group that holds
-    at least two distinct values of ``factor`` is a set.
+    at least two distinct values of ``factor`` is a set. Concentration-profile runs with a
+    single point or with points only at t = 0 carry no rate and are kept out.
     """
     if factor not in FACTORS:
         raise StudyError(f"factor '{factor}' is not one of {list(FACTORS)}")
     others = [f for f in FACTORS if f != factor]
     sets: list[ComparisonSet] = []
-    used: set[str] = set()
+    used: set[str] = set(uninformative_runs(study.runs))  # no rate information: kept out
     for r in study.runs:
         if r.id in used:
             continue
@@ -310,19 +326,15 @@ def _table_ref(data: Mapping[str, Any], key: str, base: Path, study: Path) -> tu
     return path, sheet
 
 
-def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
+def read_table(path: Path, sheet: Any = 0) -> pd.DataFrame:
+    """A CSV or XLSX table as text cells, with ``attrs["row_lines"]`` (the file line of each
+    data row, see :func:`table_line`); semicolon-separated CSVs with decimal commas are
+    recognised; unreadable files raise :class:`StudyError` with the cause and the fix."""
     try:
         if path.suffix.lower() in (".xlsx", ".xlsm"):
-            try:
-                frame = pd.read_excel(path, sheet_name=sheet, dtype=object)
-            except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
-                raise StudyError(
-                    f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
-                    f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
-                ) from None
+            frame = _read_workbook(path, sheet)
         elif path.suffix.lower() in (".csv", ".txt"):
-            frame = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True,
-                                comment="#")
+            frame = _read_csv(path)
         else:
             raise StudyError(f"{path.name}: tables must be .csv or .xlsx, got '{path.suffix}'")
     except StudyError:
@@ -336,6 +348,60 @@ def _read_table(path: Path, sheet: Any) -> pd.DataFrame:
     return frame
 
 
+def _read_workbook(path: Path, sheet: Any) -> pd.DataFrame:
+    try:
+        book = pd.ExcelFile(path)
+    except Exception as exc:  # noqa: BLE001 - any reader failure: not a usable workbook
+        raise StudyError(
+            f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
+            f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
+        ) from None
+    names = [str(n) for n in book.sheet_names]
+    if isinstance(sheet, str) and sheet not in names:
+        raise StudyError(f"{path.name}: the workbook has no sheet '{printable(sheet)}'; its "
+                         f"sheets are {names}")
+    if isinstance(sheet, int) and not 0 <= sheet < len(names):
+        raise StudyError(f"{path.name}: sheet number {sheet} does not exist (counting from 0); "
+                         f"the workbook's sheets are {names}")
+    frame = pd.read_excel(book, sheet_name=sheet, dtype=object)
+    # the header is the sheet's first row; pandas keeps blank rows below it as empty rows
+    frame.attrs["row_lines"] = list(range(2, len(frame) + 2))
+    frame.attrs["sheets"] = names
+    frame.attrs["sheet"] = names[sheet] if isinstance(sheet, int) else sheet
+    return frame
+
+
+def _read_csv(path: Path) -> pd.DataFrame:
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise StudyError(
+            f"{path.name}, line {line}: the file is not UTF-8 text (byte 0x{raw[exc.start]:02x} "
+            "cannot be read: it was probably saved as Windows-1252 or Latin-1, for example "
+            "for a degree sign or a micro sign); save it again as 'CSV UTF-8', or write the "
+            "units as plain ASCII (degC, um)") from None
+    lines = text.splitlines()
+    kept = [n for n, ln in enumerate(lines, start=1)
+            if ln.strip() and not ln.lstrip().startswith("#")]
+    header = lines[kept[0] - 1] if kept else ""
+    sep = ";" if header.count(";") > 0 and header.count(",") == 0 else ","
+    frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False,
+                        skipinitialspace=True, comment="#", sep=sep)
+    frame.attrs["row_lines"] = kept[1:]
+    if sep == ";":
+        frame.attrs["decimal_comma"] = True
+    return frame
+
+
+def table_line(frame: pd.DataFrame, i: int) -> int:
+    """The file line of data row ``i`` (from 0) as an editor or a spreadsheet shows it, the
+    header being line 1 (comment and blank lines of a CSV counted)."""
+    lines = frame.attrs.get("row_lines")
+    return int(lines[i]) if lines is not None and i < len(lines) else i + 2
+
+
 def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) -> np.ndarray:
     values = frame[col]
     out = np.empty(len(values))
@@ -344,19 +410,22 @@ def _numeric(frame: pd.DataFrame, col: str, fname: str, runs: pd.Series | None) 
         if cell is None or (isinstance(cell, float) and np.isnan(cell)) or str(cell).strip() == "":
             raise StudyError(
                 "the cell is empty; fill it in or delete the row",
-                file=fname, row=i + 1, column=col, run=run,
+                file=fname, row=table_line(frame, i), column=col, run=run,
             )
+        text = str(cell).strip()
+        if frame.attrs.get("decimal_comma"):
+            text = text.replace(",", ".")  # a semicolon-separated table writes 1,5 for 1.5
         try:
-            out[i] = float(str(cell).strip())
+            out[i] = float(text)
         except ValueError:
             raise StudyError(
                 f"'{printable(cell)}' is not a number; write a plain number (the unit goes in "
                 "the header)",
-                file=fname, row=i + 1, column=col, run=run,
+                file=fname, row=table_line(frame, i), column=col, run=run,
             ) from None
         if not np.isfinite(out[i]):
             raise StudyError(
-                f"'{cell}' is not a finite number", file=fname, row=i + 1, column=col, run=run
+                f"'{cell}' is not a finite number", file=fname, row=table_line(frame, i), column=col, run=run
             )
     return out
 
@@ -369,7 +438,16 @@ def _columns(frame: pd.DataFrame, fname: str, allowed: dict[str, str],
         if not str(header).strip().isprintable():
             raise StudyError(f"column header '{printable(header)}' holds a non-printable "
                              "character; retype the header", file=fname)
-        h = parse_header(str(header), where=fname)
+        try:
+            h = parse_header(str(header), where=fname)
+        except StudyError as exc:
+            sheets = frame.attrs.get("sheets") or []
+            if len(sheets) > 1:
+                raise StudyError(
+                    f"{exc}. This is sheet '{frame.attrs.get('sheet')}' of a workbook with "
+                    f"sheets {sheets}; if the table is on another sheet, name it in the study "
+                    f"file: {{file = \"{fname}\", sheet = \"{sheets[1]}\"}}") from None
+            raise
         if h.name in cols:
             raise StudyError(f"column '{h.name}' appears twice; keep one", file=fname)
         if h.name not in allowed and h.name not in text_cols:
@@ -394,7 +472,7 @@ def _si_column(frame, cols, name, kind, fname, runs):
         i = int(bad[0])
         raise StudyError(
             f"{raw[i]:g} {unit or ''} overflows once converted to SI units; correct the value or "
-            "its unit", file=fname, row=i + 1, column=header,
+            "its unit", file=fname, row=table_line(frame, i), column=header,
             run=None if runs is None else str(runs.iloc[i]),
         )
     return si
@@ -402,7 +480,7 @@ def _si_column(frame, cols, name, kind, fname, runs):
 
 def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[str]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     allowed = {k: v[0] for k, v in RUN_COLUMNS.items()}
     cols = _columns(frame, fname, allowed, RUN_TEXT_COLUMNS)
     for name, (_, required, _) in RUN_COLUMNS.items():
@@ -416,19 +494,20 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
     ids = [str(x).strip() for x in frame[cols["run"][0]].tolist()]
     for i, rid in enumerate(ids):
         if not rid or rid.lower() == "nan":
-            raise StudyError("the run identifier is empty", file=fname, row=i + 1, column="run")
+            raise StudyError("the run identifier is empty", file=fname, row=table_line(frame, i), column="run")
         if not rid.isprintable():
             raise StudyError(f"the run identifier '{printable(rid)}' holds a non-printable "
                              "character; use letters, digits and punctuation", file=fname,
-                             row=i + 1, column="run")
+                             row=table_line(frame, i), column="run")
     seen: dict[str, int] = {}
     for i, rid in enumerate(ids):
         if rid in seen:
             raise StudyError(
-                f"run id '{rid}' appears twice (rows {seen[rid]} and {i + 1}); give each run "
-                "its own id", file=fname, row=i + 1, column="run", run=rid,
+                f"run id '{rid}' appears twice (rows {seen[rid]} and {table_line(frame, i)}); give "
+                "each run "
+                "its own id", file=fname, row=table_line(frame, i), column="run", run=rid,
             )
-        seen[rid] = i + 1
+        seen[rid] = table_line(frame, i)
     id_series = pd.Series(ids)
     values: dict[str, np.ndarray] = {}
     for name, (kind, _, positive) in RUN_COLUMNS.items():
@@ -445,7 +524,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
             raise StudyError(
                 f"{name} must be {need}, got {raw} {cols[name][1] or ''}".rstrip()
                 + "; correct the value or its unit",
-                file=fname, row=i + 1, column=cols[name][0], run=ids[i],
+                file=fname, row=table_line(frame, i), column=cols[name][0], run=ids[i],
             )
         values[name] = v
     runs: dict[str, dict[str, Any]] = {}
@@ -456,6 +535,8 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
                 cell = frame[cols[tc][0]].iloc[i]
                 text = "" if cell is None or str(cell) == "nan" else str(cell).strip()
                 rec[tc] = text or None if tc == "group" else text
+        rec["_line"] = table_line(frame, i)
+        rec["_headers"] = {name: cols[name][0] for name in values}
         runs[rid] = rec
     return runs, ids
 
@@ -463,7 +544,7 @@ def _load_runs(path: Path, sheet: Any) -> tuple[dict[str, dict[str, Any]], list[
 def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                        tolerance: float) -> tuple[str, dict[str, dict[str, np.ndarray]]]:
     fname = path.name
-    frame = _read_table(path, sheet)
+    frame = read_table(path, sheet)
     cols = _columns(frame, fname, OBS_COLUMNS, ("run",))
     if "run" not in cols:
         raise StudyError("missing column 'run' (the run identifier)", file=fname)
@@ -490,13 +571,13 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if rid not in runs:
             raise StudyError(
                 f"observations name run '{printable(rid)}', which the runs table lacks; add the "
-                "run or fix the id", file=fname, row=i + 1, column="run", run=printable(rid),
+                "run or fix the id", file=fname, row=table_line(frame, i), column="run", run=printable(rid),
             )
     weights = (_si_column(frame, cols, "weight", "dimensionless", fname, id_series)
                if "weight" in cols else np.ones(len(ids)))
     if np.any(weights <= 0):
         i = int(np.nonzero(weights <= 0)[0][0])
-        raise StudyError("weight must be > 0", file=fname, row=i + 1, column="weight", run=ids[i])
+        raise StudyError("weight must be > 0", file=fname, row=table_line(frame, i), column="weight", run=ids[i])
     rep = (_si_column(frame, cols, "replicate", "dimensionless", fname, id_series)
            if "replicate" in cols else np.zeros(len(ids)))
     out: dict[str, dict[str, np.ndarray]] = {}
@@ -507,7 +588,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if neg.size:
             i = int(neg[0])
             raise StudyError(f"rate must be >= 0, got {frame[cols['rate'][0]].iloc[i]}",
-                             file=fname, row=i + 1, column=cols["rate"][0], run=ids[i])
+                             file=fname, row=table_line(frame, i), column=cols["rate"][0], run=ids[i])
         for rid in dict.fromkeys(ids):
             m = idx == rid
             out[rid] = {"rates": rate[m], "weights": weights[m]}
@@ -523,19 +604,19 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
         if bad.size:
             i = int(bad[0])
             raise StudyError(f"conversion must lie in [0, 1], got {x[i]:g}",
-                             file=fname, row=i + 1, column=col, run=ids[i])
+                             file=fname, row=table_line(frame, i), column=col, run=ids[i])
         c0 = np.array([runs[r]["initial_concentration"] for r in ids])
         c = c0 * (1.0 - x)
     neg_t = np.nonzero(t < 0)[0]
     if neg_t.size:
         i = int(neg_t[0])
         raise StudyError(f"time must be >= 0, got {frame[cols['time'][0]].iloc[i]}",
-                         file=fname, row=i + 1, column=cols["time"][0], run=ids[i])
+                         file=fname, row=table_line(frame, i), column=cols["time"][0], run=ids[i])
     neg = np.nonzero(c < -tolerance * np.array([runs[r]["initial_concentration"] for r in ids]))[0]
     if neg.size:
         i = int(neg[0])
         raise StudyError(f"concentration must be >= 0, got {frame[col].iloc[i]}",
-                         file=fname, row=i + 1, column=col, run=ids[i])
+                         file=fname, row=table_line(frame, i), column=col, run=ids[i])
     for rid in dict.fromkeys(ids):
         rows = np.nonzero(idx == rid)[0]
         c0 = runs[rid]["initial_concentration"]
@@ -547,7 +628,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
                 raise StudyError(
                     f"time does not increase within the run ({frame[cols['time'][0]].iloc[j]} "
                     "after a time at least as late); sort the rows by time or mark replicates "
-                    "in a 'replicate' column", file=fname, row=j + 1, column=cols["time"][0],
+                    "in a 'replicate' column", file=fname, row=table_line(frame, j), column=cols["time"][0],
                     run=rid,
                 )
         high = rows[c[rows] > c0 * (1.0 + tolerance)]
@@ -556,7 +637,7 @@ def _load_observations(path: Path, sheet: Any, runs: dict[str, dict[str, Any]],
             raise StudyError(
                 f"concentration {c[j]:.6g} mol/m^3 exceeds the run's initial concentration "
                 f"{c0:.6g} mol/m^3 by more than {tolerance:.0%}; check the value, its unit, or "
-                "the run's initial_concentration", file=fname, row=j + 1, column=col, run=rid,
+                "the run's initial_concentration", file=fname, row=table_line(frame, j), column=col, run=rid,
             )
         out[rid] = {"times": t[rows], "concentrations": np.maximum(c[rows], 0.0),
                     "weights": weights[rows]}
@@ -569,11 +650,13 @@ SECTION_KEYS: dict[str, frozenset[str]] = {
     "study": frozenset({"name", "description", "author", "date", "notes"}),
     "data": frozenset({"runs", "observations", "tolerance"}),
     "catalyst": frozenset({"geometry", "particle_density", "porosity", "name", "notes"}),
-    "pellet": frozenset({"diffusivity", "molecular_diffusivity"}),
+    "pellet": frozenset({"diffusivity", "molecular_diffusivity", "temperature_scaling"}),
     "error": frozenset({"model"}),
     "fit": frozenset({"compare"}),
     "fluid": frozenset({"solvent", "viscosity", "density", "molar_mass", "association_factor",
                         "solute_molar_volume", "diffusivity", "diffusivity_temperature"}),
+    # the stirred vessel, for the just-suspended check (kinfit/suspension.py)
+    "vessel": frozenset({"impeller_diameter", "suspension_constant", "notes"}),
 }
 SECTIONS = frozenset({*SECTION_KEYS, "kinetics", "film", "parameters"})
 
@@ -588,8 +671,9 @@ def _section(doc: Mapping[str, Any], name: str, path: Path, required: bool) -> d
     if allowed is not None:
         unknown = sorted(set(sec) - allowed)
         if unknown:
-            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'; "
-                             f"allowed keys are {sorted(allowed)}")
+            raise StudyError(f"{path}: [{name}] has unknown key '{printable(unknown[0])}'"
+                             f"{did_you_mean(unknown[0], allowed)}; allowed keys are "
+                             f"{sorted(allowed)}")
     return dict(sec)
 
 
@@ -640,6 +724,15 @@ def _quantities(sec: dict[str, Any], section: str, path: Path) -> dict[str, Any]
     return out
 
 
+def _check_vessel(sec: dict[str, Any], path: Path) -> None:
+    """The [vessel] section: a positive impeller diameter and Zwietering's constant S."""
+    _quantities({k: v for k, v in sec.items() if k == "impeller_diameter"}, "vessel", path)
+    s = sec.get("suspension_constant")
+    if s is not None and (isinstance(s, bool) or not isinstance(s, int | float) or not s > 0):
+        raise StudyError(f"{path.name} [vessel].suspension_constant must be a positive number "
+                         f"(Zwietering's S, typically 4 to 12), got {printable(repr(s))}")
+
+
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file and its tables.
 
@@ -660,9 +753,13 @@ def load_study(path: str | Path) -> Study:
     path = Path(path)
     doc = _read_toml(path)
     stray = sorted(set(doc) - SECTIONS)
+    if "claim" in stray:
+        raise StudyError(f"{path} is a claim file ([[claim]] tables), not a study; judge it "
+                         f"with 'kinfit audit {path}'")
     if stray:
         raise StudyError(f"{path}: unknown section or key '{printable(stray[0])}' at the top "
-                         f"level; the study file's sections are {sorted(SECTIONS)}")
+                         f"level{did_you_mean(stray[0], SECTIONS)}; the study file's sections "
+                         f"are {sorted(SECTIONS)}")
     base = path.resolve().parent
     files = {str(path): _sha256(path)}
     data = _section(doc, "data", path, True)
@@ -709,9 +806,13 @@ def load_study(path: str | Path) -> Study:
                          "write for example particle_density = \"1500 kg/m^3\"")
     if catalyst["particle_density"] <= 0:
         raise StudyError(f"{path.name} [catalyst]: particle_density must be > 0")
+    check_density(catalyst["particle_density"], f"{path.name} [catalyst].particle_density")
     kinetics = _quantities(_section(doc, "kinetics", path, True), "kinetics", path)
     if "rate_law" not in kinetics:
-        raise StudyError(f"{path.name} [kinetics]: rate_law is missing; write rate_law = \"power\"")
+        typo = [k for k in kinetics if did_you_mean(k, ["rate_law"])]
+        raise StudyError(f"{path.name} [kinetics]: rate_law is missing" + (
+            f"; '{printable(typo[0])}' looks like a misspelling of 'rate_law'" if typo else "")
+            + "; write rate_law = \"power\" (or another rate law)")
     if not isinstance(kinetics["rate_law"], str) or not kinetics["rate_law"].strip():
         raise StudyError(f"{path.name} [kinetics]: rate_law must be the name of a rate law, "
                          f"such as \"power\"; got {printable(repr(kinetics['rate_law']))}")
@@ -731,6 +832,19 @@ def load_study(path: str | Path) -> Study:
                           f"{path.name} [error]", "constant")
     fit = _section(doc, "fit", path, False)
     fluid = _quantities(_section(doc, "fluid", path, False), "fluid", path)
+    # transport scales with the liquid's viscosity by default when the study names its liquid
+    default_scaling = "viscosity" if fluid.get("solvent") else "none"
+    for sec, sec_name in ((pellet, "pellet"), (film, "film")):
+        sec["temperature_scaling"] = _choice(sec, "temperature_scaling", ("viscosity", "none"),
+                                             f"{path.name} [{sec_name}]", default_scaling)
+        if sec["temperature_scaling"] == "viscosity" and not fluid:
+            raise StudyError(f"{path.name} [{sec_name}]: temperature_scaling = \"viscosity\" "
+                             "needs the liquid's viscosity: add a [fluid] section (e.g. solvent "
+                             "= \"water\"), or set temperature_scaling = \"none\"")
+    _check_vessel(_section(doc, "vessel", path, False), path)
+    if "density" in fluid:
+        check_density(fluid["density"], f"{path.name} [fluid].density")
+    check_runs(run_info, runs_path.name, film_model=str(film["model"]).strip().lower())
     params = parameter_table_from_toml(_section(doc, "parameters", path, True), path.name)
     study_meta = _section(doc, "study", path, False)
     name = str(study_meta.get("name", path.stem))

@@ -102,7 +102,7 @@ def _factor(unit_text: str, kind: str, where: str) -> tuple[float, float]:
         raise StudyError(
             f"{where}: unit '{printable(unit_text)}' is not recognised "
             f"({exc.__class__.__name__}); "
-            f"write a {kind} unit such as '{_EXAMPLE[kind]}'"
+            f"write {_kind_words(kind)} unit such as '{_EXAMPLE[kind]}'"
         ) from None
     if kind == "speed" and _ANGLES & {str(name) for name in unit._units}:
         target = ureg.rps  # an angle per time: count revolutions, not radians
@@ -110,12 +110,24 @@ def _factor(unit_text: str, kind: str, where: str) -> tuple[float, float]:
         target = _unit(si)
     if unit.dimensionality != target.dimensionality:
         raise StudyError(
-            f"{where}: unit '{printable(unit_text)}' is not a {kind} unit (it is "
+            f"{where}: unit '{printable(unit_text)}' is not {_kind_words(kind)} unit (it is "
             f"{unit.dimensionality or 'dimensionless'}); write a unit such as '{_EXAMPLE[kind]}'"
         )
     q0 = ureg.Quantity(0.0, unit).to(target).magnitude
     q1 = ureg.Quantity(1.0, unit).to(target).magnitude
     return q1 - q0, q0
+
+
+#: what each quantity kind is called in a message
+_KIND_WORDS = {"energy_per_mol": "molar energy", "rate_per_mass": "rate per catalyst mass",
+               "per_concentration": "reciprocal concentration", "speed": "stirrer speed",
+               "loading": "catalyst loading", "dimensionless": "dimensionless"}
+
+
+def _kind_words(kind: str) -> str:
+    """'a temperature', 'a molar energy', 'an ...': the kind with its article."""
+    words = _KIND_WORDS.get(kind, kind.replace("_", " "))
+    return f"{'an' if words[0] in 'aeiou' else 'a'} {words}"
 
 
 _EXAMPLE = {

@@ -1,8 +1,8 @@
 """Reader and hand-coded models for the NIST StRD nonlinear regression datasets.
 
 Source: NIST Statistical Reference Datasets, nonlinear regression (Statistical Engineering
-Division, ITL; https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml), 27 ``.dat`` files in
-``shared/data/nist-strd``. Each file states its model formula; every model below is keyed by that
+Division, ITL; https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml), 27 ``.dat`` files kept
+in the repository at ``tests/data/nist-strd`` (public domain; provenance in its README). Each file states its model formula; every model below is keyed by that
 formula (spaces removed, ``[]`` read as ``()``), vectorised over parameter rows (m, p) -> (m, n),
 with its analytic Jacobian (p,) -> (n, p). Accuracy is scored by the log relative error of
 McCullough (1998), *The American Statistician* 52(4), 358-366.
@@ -10,7 +10,6 @@ McCullough (1998), *The American Statistician* 52(4), 358-366.
 
 from __future__ import annotations
 
-import os
 import re
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -32,15 +31,9 @@ DATASETS = (
 )  # fmt: skip
 
 
-def nist_dir() -> Path | None:
-    """``<repo>/../shared/data/nist-strd``, else ``$KINFIT_NIST_DIR``, else None."""
-    here = Path(__file__).resolve().parents[2] / "shared" / "data" / "nist-strd"
-    if here.is_dir():
-        return here
-    env = os.environ.get("KINFIT_NIST_DIR")
-    if env and Path(env).is_dir():
-        return Path(env)
-    return None
+def nist_dir() -> Path:
+    """``tests/data/nist-strd`` of this repository (a missing file fails its test, never skips)."""
+    return Path(__file__).resolve().parent / "data" / "nist-strd"
 
 
 @dataclass(frozen=True)

@@ -73,6 +73,7 @@ def study_text(
     sections: str = "",
     comment: str | None = None,
     geometry: str = "sphere",
+    temperature_scaling: str | None = None,
 ) -> str:
     """The TOML text of a study on particles of 1500 kg/m^3 (spheres unless ``geometry``).
 
@@ -104,6 +105,9 @@ def study_text(
         A ``#`` comment line at the top.
     geometry : str
         ``[catalyst] geometry``.
+    temperature_scaling : str or None
+        ``temperature_scaling`` written into ``[film]`` and (when present) ``[pellet]``; None
+        leaves it to the loader's default.
     """
     blocks = []
     if comment is not None:
@@ -115,13 +119,15 @@ def study_text(
     kin = {"rate_law": rate_law, "reference_temperature": reference_temperature,
            **(kinetics or {})}
     blocks.append("[kinetics]\n" + "".join(f"{k} = {_toml_value(v)}\n" for k, v in kin.items()))
+    scaling = ("" if temperature_scaling is None
+               else f'temperature_scaling = "{temperature_scaling}"\n')
     film_text = f'[film]\nmodel = "{film}"\n'
     if film == "agitation":
         film_text += (f'reference_speed = "{reference_speed}"\n'
                       f'reference_diameter = "{reference_diameter}"\n')
-    blocks.append(film_text)
+    blocks.append(film_text + scaling)
     if pellet is not None:
-        blocks.append(f'[pellet]\ndiffusivity = "{pellet}"\n')
+        blocks.append(f'[pellet]\ndiffusivity = "{pellet}"\n' + scaling)
     out = []
     for pname, spec in parameters.items():
         keys = dict(spec) if isinstance(spec, Mapping) else {"value": spec}

@@ -1,4 +1,4 @@
-"""The public API contract (STYLE.md rule 13): every module declares __all__, every name in it
+"""The public API contract (kinfit's API rule, DEVELOPERS.md): every module declares __all__, every name in it
 exists, and the top-level names resolve.
 
 These are checks of kinfit's own contract, not of the physics: no outside source applies."""

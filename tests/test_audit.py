@@ -3,7 +3,7 @@ stated true values, seeded noise) must get the verdict the regime implies.
 
 Facts checked (sources in each test): film control shows as a Carberry number near 1 and an
 apparent activation energy near zero (Carberry 1976; common practice); strong pore diffusion
-halves the activation energy (Weisz & Prater 1954; Satterfield 1970; REFERENCES.md section 2:
+halves the activation energy (Weisz & Prater 1954; Satterfield 1970; Aris 1965; Bischoff 1965:
 E_app/E = 0.526 at phi_R = 20); a claim at the true values of kinetic-regime data lies inside
 the joint 95 % region (Beale 1960; Bates & Watts 1988).
 """
@@ -152,7 +152,7 @@ def test_joint_region_bound_follows_beale(tmp_path):
 
 def test_pore_limited_claim_with_half_activation_energy_is_flagged(tmp_path):
     # strong pore diffusion: E_app = E/2 (Weisz & Prater 1954; Satterfield 1970); for a
-    # first-order sphere E_app/E = 0.526 at phi_R = 20 (REFERENCES.md section 2 [calc])
+    # first-order sphere E_app/E = 0.526 at phi_R = 20 (Aris 1965; Bischoff 1965 [calc])
     study, model = campaign(tmp_path, PORE)
     st = model.run_states(model.x0)
     assert np.all(st.criteria.regime == "pore")
@@ -267,7 +267,7 @@ def test_film_coefficient_needs_exponents_when_speeds_differ(tmp_path):
                                  'agitation_exponent = 0.5'))
     runs = audit_claims(path).claims[0].conditions["runs"]
     kc = sorted(r["observable"]["kc"] for r in runs.values())
-    # agitation law kc = kc_ref (N/N_ref)^a (common practice, REFERENCES.md section 4)
+    # agitation law kc = kc_ref (N/N_ref)^a (common practice)
     assert kc[0] == pytest.approx(5e-5 * 0.5**0.5) and kc[-1] == pytest.approx(5e-5 * 1.5**0.5)
 
 

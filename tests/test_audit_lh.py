@@ -302,29 +302,43 @@ def test_lh_markdown_and_json_show_lh_parameters(tmp_path):
 
 def test_power_law_report_unchanged():
     # power-law claims keep their results: the invented example's audit equals the committed
-    # reports/claim/audit.json (manifest aside; floats to 1e-9)
+    # reports/claim/audit.json (manifest aside). Texts, verdicts, regimes and flags must be
+    # equal; floats to the accuracy of the computation that gives them, not to one CPU's bits:
+    # - refit results (reproduction, signatures): the refit stops at ftol = 1e-12, where the
+    #   SSE is within ftol S of its minimum, so each estimate is pinned to about
+    #   sqrt(ftol (n - p)) ~ 1e-5 of its standard error; the transport-aware model adds its
+    #   pellet solver's error. 1e-5 relative is at most 2e-3 standard errors while every
+    #   relative standard error is >= 0.5 % (asserted below), and far above the measured
+    #   machine-to-machine spread (2e-7 relative).
+    # - the conditions at the claimed values are closed forms and the tabulated eta, stated good
+    #   to 5e-6 relative (kinfit.transport._pellet_table): 1e-7 relative, well inside it.
     root = Path(__file__).resolve().parents[1]
     new = audit_claims(root / "examples" / "claim" / "claim.toml").to_dict()
     old = json.loads((root / "reports" / "claim" / "audit.json").read_text())
 
-    def same(a, b, where="") -> None:
+    def same(a, b, rel, where="") -> None:
         if isinstance(a, dict):
             assert isinstance(b, dict) and set(a) == set(b), where
             for k in a:
-                same(a[k], b[k], f"{where}.{k}")
+                r = 1e-5 if k in ("reproduction", "signatures") else rel
+                same(a[k], b[k], r, f"{where}.{k}")
         elif isinstance(a, list):
             assert isinstance(b, list) and len(a) == len(b), where
             for i, (x, y) in enumerate(zip(a, b, strict=True)):
-                same(x, y, f"{where}[{i}]")
+                same(x, y, rel, f"{where}[{i}]")
         elif isinstance(a, float) and isinstance(b, float):
-            assert a == pytest.approx(b, rel=1e-9, abs=1e-300), where
+            assert a == pytest.approx(b, rel=rel, abs=1e-300), where
         else:
             assert a == b, where
 
+    for claim in old["claims"]:
+        for fit in claim["reproduction"].values():
+            for e in fit["estimates"].values():
+                assert e["stderr"] >= 0.005 * abs(e["estimate"]), e
     new.pop("manifest")
     old.pop("manifest")
     new["claim_file"] = old["claim_file"]
-    same(new, old)
+    same(new, old, 1e-7)
 
 
 BAD = CONDITIONS_ONLY.format(Ea="60 kJ/mol", K="0.8 L/mol", dH="-20 kJ/mol", m=1)

@@ -1,5 +1,5 @@
 """The quick criteria calculator against hand calculations from the published formulas
-(REFERENCES.md sections 1-4) and the tabulated effectiveness factors."""
+(Thiele 1939; Aris 1957; Weisz & Prater 1954; Carberry 1976; Mears 1971; Sano, Yamaguchi & Adachi 1974) and the tabulated effectiveness factors."""
 
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ from kinfit.transport.properties import make_fluid
 def test_hand_calculation_sphere_first_order():
     # Carberry (1976): Ca = r/(kc a_m Cb), a_m = 6/(rho_p dp); Mears (1971) with the particle
     # density: r rho_p R n/(kc Cb); Weisz & Prater (1954): Psi_R = r rho_p R^2/(De Cs),
-    # Psi_L = Psi_R (L/R)^2 = Psi_R/9 for a sphere (REFERENCES.md section 3). Hand numbers:
+    # Psi_L = Psi_R (L/R)^2 = Psi_R/9 for a sphere (Weisz & Prater 1954). Hand numbers:
     # a_m = 6/(1500 * 75e-6) = 53.333 m^2/kg; Ca = 0.02/(1e-4 * 53.333 * 500) = 0.0075;
     # Cs = 500 (1 - 0.0075) = 496.25 mol/m^3; Mears = 0.02 * 1500 * 37.5e-6/(1e-4 * 500)
     # = 0.0225; Psi_R = 0.02 * 1500 * (37.5e-6)^2/(1e-9 * 496.25) = 0.0850126
@@ -36,10 +36,13 @@ def test_hand_calculation_sphere_first_order():
     assert res["mears"] == pytest.approx(3 * 1.0 * res["carberry"], rel=1e-12)  # 3 n Ca
     assert res["weisz_prater_radius"] == pytest.approx(0.0850126, rel=1e-6)
     assert res["weisz_prater"] == pytest.approx(res["weisz_prater_radius"] / 9, rel=1e-12)
-    # published limits: Ca < 0.05/n, Psi_R < 0.3 (Psi_L < 0.3/9), Mears < 0.15
+    # limits for a 5 % rate error: Ca < 0.05/n (Carberry 1976), Mears < 0.15 for a sphere
+    # (Mears 1971), Psi_R < 0.767 (first-order sphere eta = 0.95, from the closed form of
+    # Thiele 1939), Psi_L = Psi_R/9
     assert res["thresholds"]["carberry"] == pytest.approx(0.05)
-    assert res["thresholds"]["weisz_prater"] == pytest.approx(0.3 / 9)
-    assert res["thresholds"]["weisz_prater_radius"] == pytest.approx(0.3)
+    assert res["thresholds"]["weisz_prater_radius"] == pytest.approx(0.7671, abs=2e-4)
+    assert res["thresholds"]["weisz_prater"] == pytest.approx(
+        res["thresholds"]["weisz_prater_radius"] / 9)
     assert res["thresholds"]["mears"] == pytest.approx(0.15)
     assert res["intrinsic"] is True and res["verdict"].startswith("intrinsic")
     # Weisz-Prater number equals eta Phi^2 for first order, L normalisation (Weisz & Prater
@@ -50,8 +53,8 @@ def test_hand_calculation_sphere_first_order():
 
 def test_thiele_modulus_from_weisz_prater_first_order_sphere():
     # first-order sphere, radius form: Psi_R = 3 (phi_R coth phi_R - 1) = eta phi_R^2 with
-    # eta = 0.8059720811 at phi_R = 2 (Thiele 1939; REFERENCES.md Table 2); in the Aris form
-    # Phi = phi_R/3 (REFERENCES.md section 1)
+    # eta = 0.8059720811 at phi_R = 2 (Thiele 1939; computed from the closed form); in the Aris form
+    # Phi = phi_R/3 (Thiele 1939; Aris 1957)
     phi_R, R, De, rho, Cs = 2.0, 5e-5, 1e-9, 1000.0, 100.0
     psi_R = 3.0 * (phi_R / math.tanh(phi_R) - 1.0)
     rate = psi_R * De * Cs / (rho * R**2)
@@ -65,7 +68,7 @@ def test_thiele_modulus_from_weisz_prater_first_order_sphere():
 
 
 @pytest.mark.parametrize(("geometry", "psi_L", "eta"), [
-    # REFERENCES.md section 3.1, Table 3 (first order, [calc]): eta implied by a given Psi
+    # Weisz & Prater 1954, values computed from the first-order closed form: eta implied by a given Psi
     ("sphere", 1.0 / 9.0, 0.935278),   # Psi_R = 1
     ("sphere", 0.3 / 9.0, 0.980173),   # Psi_R = 0.3
     ("sphere", 1.0, 0.563259),         # Psi_L = 1
@@ -85,7 +88,7 @@ def test_effectiveness_implied_by_weisz_prater(geometry, psi_L, eta):
 
 
 @pytest.mark.parametrize(("order", "phi", "eta"), [
-    # slab, generalised modulus (Aris 1965; REFERENCES.md section 2 table, solve_bvp [calc])
+    # slab, generalised modulus (Aris 1965; Bischoff 1965; values from scipy solve_bvp)
     (2.0, 1.0, 0.726468), (2.0, 2.0, 0.462643), (0.5, 1.0, 0.806929), (0.5, 0.5, 0.946294),
 ])
 def test_generalised_modulus_inverted_for_other_orders(order, phi, eta):
@@ -114,7 +117,7 @@ def test_carberry_limit_scales_with_order():
 @pytest.mark.parametrize(("correlation", "sherwood"), [
     ("sano", 9.4136), ("armenante_kirwan", 9.8842)])
 def test_film_from_stirrer_speed_worked_example(correlation, sherwood):
-    # REFERENCES.md section 4 worked example ([calc]): water-like liquid with nu = 8.927e-7
+    # worked example (eps = N_p N^3 D^5/V, common practice; Sano, Yamaguchi & Adachi 1974) ([calc]): water-like liquid with nu = 8.927e-7
     # m^2/s, Dm = 1e-9 m^2/s, dp = 50 um, Rushton turbine Np = 5, D = 0.05 m, V = 1 L, N = 10/s:
     # Sh = 9.4136 (Sano, Yamaguchi & Adachi 1974), 9.8842 (Armenante & Kirwan 1989)
     fluid = make_fluid(None, viscosity=8.927e-4, density=1000.0, diffusivity=1e-9)
@@ -192,3 +195,23 @@ def test_report_text_lists_every_criterion():
     for word in ("Carberry", "Mears", "Weisz-Prater", "effectiveness factor", "Thiele modulus",
                  "verdict"):
         assert word in text
+
+
+def test_nothing_assessed_is_said_so_not_kinetic():
+    # neither kc nor De given: no resistance share and no regime can be stated (kinfit's
+    # results contract: a quantity not assessed is null, never 0 % or "kinetic")
+    res = criteria_from_measurement(rate=0.02, particle_diameter=75e-6, particle_density=1500.0,
+                                    bulk_concentration=500.0)
+    assert res["regime"] is None and res["controlling"] is None
+    assert res["shares"] == {"film": None, "pore": None, "reaction": None}
+    text = format_criteria(res)
+    assert "not assessed" in text and "kinetic" not in text and "0 %" not in text
+    json.dumps(res)  # None values serialise as null
+
+
+def test_film_only_assessed_leaves_the_regime_open():
+    # kc given, De not: the pore resistance is unknown, so is every share
+    res = criteria_from_measurement(rate=0.02, particle_diameter=75e-6, particle_density=1500.0,
+                                    bulk_concentration=500.0, film_coefficient=1e-4)
+    assert res["regime"] is None and res["resistances"]["pore"] is None
+    assert res["resistances"]["film"] == pytest.approx(1 / (1e-4 * 6 / (1500 * 75e-6)))

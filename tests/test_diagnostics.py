@@ -125,7 +125,7 @@ def film_campaign(tmp_path_factory):
 def test_extra_sum_of_squares_matches_statsmodels():
     # the extra-sum-of-squares F test of nested OLS fits (Bates & Watts 1988) against
     # statsmodels' RegressionResults.compare_f_test on the same data (reference library)
-    sm = pytest.importorskip("statsmodels.api")
+    import statsmodels.api as sm  # a declared test dependency: missing is a failure
     rng = np.random.default_rng(3)
     x = np.tile(np.linspace(0.0, 1.0, 10), 3)
     level = np.repeat(np.arange(3), 10)
@@ -139,6 +139,8 @@ def test_extra_sum_of_squares_matches_statsmodels():
     full = sm.OLS(y, full_X).fit()
     reduced = sm.OLS(y, B).fit()
     F, p, df = full.compare_f_test(reduced)
+    # both sides solve linear least squares through LAPACK (rounding ~1e-13 on these
+    # well-conditioned designs); the p value amplifies that by |d ln p / d ln F| < 1e3: 1e-9
     assert test.statistic == pytest.approx(F, rel=1e-9)
     assert test.p_value == pytest.approx(p, rel=1e-9)
     assert test.df == (int(df), int(full.df_resid))
@@ -201,7 +203,7 @@ def _eta_sphere_radius(phi):
 @pytest.mark.parametrize(("phi_500", "ratio"), [(0.1, 0.99932), (1.0, 0.93947), (3.0, 0.72305),
                                                  (20.0, 0.52599), (100.0, 0.50499)])
 def test_apparent_activation_energy_halves_in_strong_pore_diffusion(phi_500, ratio):
-    # REFERENCES.md section 2 check values (sphere, first order, E = 100 kJ/mol, De
+    # check values computed from the closed form (Thiele 1939; Weisz & Prater 1954) (sphere, first order, E = 100 kJ/mol, De
     # independent of T; Satterfield 1970; Weisz & Prater 1954): E_app/E at phi_R(500 K).
     # The tabulated numbers are the Arrhenius secant between 500 and 501 K (they are
     # reproduced to all five digits that way; the local slope at phi_R = 1 is 0.94074)
@@ -274,13 +276,14 @@ def test_film_campaign_labels_and_model_free_conclusions(film_campaign):
     # labels from the fit equal the true ones wherever the truth is not on a boundary
     for rid, tr in true_runs.items():
         shares = tr["shares"].values()
-        if min(abs(s - 0.5) for s in shares) > 0.05:
+        near_kinetic = abs(tr["shares"]["reaction"] - 0.95) < 0.02
+        if min(abs(s - 0.5) for s in shares) > 0.05 and not near_kinetic:
             assert diag.runs[rid]["regime"] == tr["regime"], rid
     assert diag.runs["R06"]["regime"] == "film"  # 70 degC, 200 rpm, 300 um
     # intrinsic flags equal the true ones wherever the true Carberry number is not within
     # 30 % of its limit (a fitted kc a few per cent off moves runs near the limit)
-    limit = diag.thresholds["carberry"]
     for rid, tr in true_runs.items():
+        limit = tr["thresholds"]["carberry"]
         if not 0.7 < tr["carberry"] / limit < 1.3:
             assert (rid in diag.intrinsic_runs) == tr["intrinsic"], rid
     speed_tests = [t for t in diag.model_free if t.factor == "stirrer_speed"]
@@ -299,7 +302,7 @@ def test_film_campaign_labels_and_model_free_conclusions(film_campaign):
 
 
 def test_speed_without_effect_but_size_with_one(tmp_path):
-    # the classic trap (REFERENCES.md section 3, experimental diagnostics): a film coefficient
+    # the classic trap (common practice): a film coefficient
     # that does not change with agitation (Sh -> 2 regime, kc ~ 1/dp; invented) shows no speed
     # effect although the film limits; particle size does show it
     rows = _grid((70,), (300, 1200), (30, 300))
@@ -308,16 +311,15 @@ def test_speed_without_effect_but_size_with_one(tmp_path):
     speed = [t for t in res.tests if t.factor == "stirrer_speed"]
     size = [t for t in res.tests if t.factor == "particle_diameter"]
     assert speed and not any(t.different for t in speed)
-    assert all("says nothing about pore diffusion" in t.conclusion for t in speed)
+    assert all("leaves the pores untested" in t.conclusion for t in speed)
     assert size and all(t.different and t.direction == "slower at higher" for t in size)
     assert all("holds only if the film coefficient does change" in t.conclusion for t in speed)
 
 
 def test_pore_campaign_speed_no_effect_size_effect(tmp_path):
-    # pore-limited, film negligible (invented truth; needs the pellet module): stirrer speed
-    # makes no difference, particle size does, the cross-reference names pore diffusion, and
-    # the large particles are labelled 'pore'
-    pytest.importorskip("kinfit.transport.pellet")
+    # pore-limited, film negligible (invented truth): stirrer speed makes no difference,
+    # particle size does, the cross-reference names pore diffusion, and the large particles
+    # are labelled 'pore'
     rows = _grid((55, 70), (300, 1200), (30, 300))
     study, truth = write_campaign(tmp_path, rows, kc_ref="1e-3 m/s", De="5e-11 m^2/s")
     model = Model(ModelSpec.from_study(study), study)
@@ -443,7 +445,8 @@ def test_diagnosis_json_shape(film_campaign, tmp_path):
     assert {"temperature", "k_apparent"} <= set(f["per_temperature"][0])
     assert set(data["next_runs"][0]) >= {"temperature", "stirrer_speed", "particle_diameter",
                                         "note"}
-    assert data["thresholds"]["weisz_prater"] == pytest.approx(0.3 / 9)
+    # sphere: Psi_L where the first-order eta is 0.95 (closed form of Thiele 1939), Psi_R/9
+    assert data["thresholds"]["weisz_prater"] == pytest.approx(0.7671 / 9, abs=3e-5)
     assert "Mears 1971" in data["sources"]["mears"]
     assert not list((tmp_path / "out").glob(".*.tmp"))  # atomic write left nothing behind
     text = diag.report()

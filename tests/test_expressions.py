@@ -130,7 +130,7 @@ def test_bad_constant_names_rejected():
 
 
 def test_power_law_expression_reproduces_power_law_exactly(rng):
-    """The `power` rate law written as an expression gives the same numbers (DESIGN.md power law
+    """The `power` rate law written as an expression gives the same numbers (kinfit's power law
     with Arrhenius at T_ref)."""
     law = PowerLaw(reference_temperature=330.0, reference_concentration=1000.0)
     f = compile_expression(

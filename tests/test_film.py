@@ -27,8 +27,8 @@ from kinfit.transport.film import (
 )
 from kinfit.transport.properties import make_fluid
 
-# REFERENCES.md section 4 worked example: water at 25 degC with nu = 8.927e-7 m^2/s and
-# D_m = 1e-9 m^2/s (Sc = 892.7), dp = 50 um, Rushton N_p = 5, D = 0.05 m, V = 1 L, D/T = 0.45.
+# Worked example (values computed here from the formulas named in each test): water at
+# 25 degC with nu = 8.927e-7 m^2/s (from memory) and D_m = 1e-9 m^2/s (Sc = 892.7), dp = 50 um, Rushton N_p = 5, D = 0.05 m, V = 1 L, D/T = 0.45.
 EXAMPLE_FLUID = make_fluid(None, viscosity=8.927e-4, density=1000.0, diffusivity=1e-9)
 TANK = {"power_number": 5.0, "impeller_diameter": 0.05, "liquid_volume": 1e-3}
 DP = 50e-6
@@ -53,8 +53,9 @@ def slurry(correlation: str) -> SlurryFilm:
 
 
 def test_worked_example_power_and_kolmogorov_reynolds():
-    """REFERENCES.md section 4 worked example [calc]: eps = N_p N^3 D^5 / V and
-    Re_K = eps^(1/3) dp^(4/3) / nu at N = 5, 10, 20 1/s."""
+    """Worked example: eps = N_p N^3 D^5 / V (definition of the power number) and the
+    Kolmogorov particle Reynolds number Re_K = eps^(1/3) dp^(4/3) / nu (common practice) at
+    N = 5, 10, 20 1/s, values computed from those formulas."""
     N = WORKED_EXAMPLE[:, 0]
     eps = specific_power(N, **TANK)
     np.testing.assert_allclose(eps, WORKED_EXAMPLE[:, 1], rtol=5e-5)
@@ -67,9 +68,10 @@ def test_worked_example_power_and_kolmogorov_reynolds():
     [("sano", 3), ("armenante_kirwan", 4), ("levins_glastonbury", 5)],
 )
 def test_worked_example_sherwood_numbers(correlation, column):
-    """REFERENCES.md section 4 worked-example table [calc]: Sh at N = 5, 10, 20 1/s for Sano,
+    """Worked example: Sh at N = 5, 10, 20 1/s from the published correlations of Sano,
     Yamaguchi & Adachi (1974), Armenante & Kirwan (1989) and Levins & Glastonbury (1972),
-    through the film model (k_c dp / D_m), to the table's 5 significant figures."""
+    through the film model (k_c dp / D_m), against values computed from those correlations
+    (5 significant figures)."""
     film = slurry(correlation)
     N = WORKED_EXAMPLE[:, 0]
     kc = film.kc(N, DP, 298.15, {})
@@ -78,8 +80,8 @@ def test_worked_example_sherwood_numbers(correlation, column):
 
 @pytest.mark.parametrize(("correlation", "slope"), [("sano", 0.591), ("armenante_kirwan", 0.415)])
 def test_worked_example_local_speed_exponent(correlation, slope):
-    """REFERENCES.md section 4 worked example [calc]: d ln k_c / d ln N at N = 10 1/s is 0.591
-    (Sano) and 0.415 (Armenante & Kirwan)."""
+    """Worked example: d ln k_c / d ln N at N = 10 1/s is 0.591 for Sano, Yamaguchi & Adachi
+    (1974) and 0.415 for Armenante & Kirwan (1989), computed from the two correlations."""
     film = slurry(correlation)
     h = 1e-4
     kc = film.kc(10.0 * np.exp([-h, h]), DP, 298.15, {})
@@ -88,7 +90,7 @@ def test_worked_example_local_speed_exponent(correlation, slope):
 
 def test_slurry_stagnant_limit_is_two():
     """Sh -> 2 as the power input vanishes: steady diffusion from a sphere into a stagnant
-    liquid (derived; REFERENCES.md section 4)."""
+    liquid (derived; the limit of Ranz & Marshall 1952)."""
     for correlation in ("sano", "armenante_kirwan", "levins_glastonbury"):
         kc = slurry(correlation).kc(1e-15, DP, 298.15, {})
         assert float(kc * DP / 1e-9) == pytest.approx(2.0, abs=1e-6)
@@ -113,7 +115,7 @@ def test_slurry_kc_rises_with_stirrer_speed_with_real_water():
 # Single sphere and packed bed
 # ---------------------------------------------------------------------------------------------
 
-# REFERENCES.md section 4, "Check values at Sc = 892.68" [calc]: Re, Sh Ranz-Marshall,
+# check values computed at Sc = 892.68 from Ranz & Marshall 1952 and Wakao & Funazkri 1978: Re, Sh Ranz-Marshall,
 # Sh Wakao-Funazkri.
 SPHERE_TABLE = np.array(
     [[1.0, 7.7772, 12.5915], [10.0, 20.2691, 44.1655], [100.0, 59.7718, 169.8640]]
@@ -121,8 +123,8 @@ SPHERE_TABLE = np.array(
 
 
 def test_sphere_and_bed_check_values_pure_functions():
-    """Ranz & Marshall (1952) and Wakao & Funazkri (1978) at Sc = 892.68, REFERENCES.md
-    section 4 table, to 5 significant figures."""
+    """Ranz & Marshall (1952) and Wakao & Funazkri (1978) at Sc = 892.68, values computed
+    from the two correlations, to 5 significant figures."""
     Re = SPHERE_TABLE[:, 0]
     np.testing.assert_allclose(sherwood_ranz_marshall(Re, 892.68), SPHERE_TABLE[:, 1], rtol=5e-5)
     np.testing.assert_allclose(sherwood_wakao_funazkri(Re, 892.68), SPHERE_TABLE[:, 2], rtol=5e-5)
@@ -130,7 +132,7 @@ def test_sphere_and_bed_check_values_pure_functions():
 
 @pytest.mark.parametrize(("Re", "sh_rm", "sh_wf"), SPHERE_TABLE.tolist())
 def test_sphere_and_bed_check_values_through_models(Re, sh_rm, sh_wf):
-    """Same REFERENCES.md section 4 table through SphereFilm and PackedBedFilm: a liquid with
+    """Same check values (Ranz & Marshall 1952; Wakao & Funazkri 1978) through SphereFilm and PackedBedFilm: a liquid with
     nu = 8.9268e-7 m^2/s and D_m = 1e-9 m^2/s (Sc = 892.68), velocity u = Re nu / dp."""
     fluid = make_fluid(None, viscosity=8.9268e-4, density=1000.0, diffusivity=1e-9)
     u = Re * 8.9268e-7 / DP
@@ -142,7 +144,7 @@ def test_sphere_and_bed_check_values_through_models(Re, sh_rm, sh_wf):
 
 def test_frossling_form_and_ordering():
     """Frossling (1938): Sh = 2 + 0.552 Re^(1/2) Sc^(1/3), i.e. (Sh - 2) is 0.552/0.6 of the
-    Ranz & Marshall (1952) value at every Re and Sc (both forms from REFERENCES.md section 4)."""
+    Ranz & Marshall (1952) value at every Re and Sc (both forms: Ranz & Marshall 1952; Wakao & Funazkri 1978)."""
     Re = np.array([0.5, 5.0, 50.0])
     Sc = np.array([[100.0], [1000.0]])
     ratio = (sherwood_frossling(Re, Sc) - 2.0) / (sherwood_ranz_marshall(Re, Sc) - 2.0)
@@ -167,7 +169,7 @@ AGITATION_P = {
 
 
 def test_agitation_law_reference_point_and_slopes():
-    """kc = kc_ref (N/N_ref)^a (dp/dp_ref)^(-b) (DESIGN.md film law): kc_ref at the reference
+    """kc = kc_ref (N/N_ref)^a (dp/dp_ref)^(-b) (kinfit's agitation law, common practice): kc_ref at the reference
     point, log-log slopes a and -b."""
     film = AgitationFilm(reference_speed=10.0, reference_diameter=50e-6)
     N = np.array([10.0, 20.0, 10.0])
@@ -300,7 +302,7 @@ def test_make_film_model_rejects_bad_names_and_options():
 
 
 def test_external_area_reference_value():
-    """REFERENCES.md section 4: a_m = 6/(rho_p dp) = 80.000 m^2/kg for dp = 50 um and
+    """Sphere geometry (common practice): a_m = 6/(rho_p dp) = 80.000 m^2/kg for dp = 50 um and
     rho_p = 1500 kg/m^3 [calc]."""
     assert float(external_area("sphere", 50e-6, 1500.0)) == pytest.approx(80.000, abs=5e-4)
 
@@ -309,7 +311,7 @@ def test_external_area_reference_value():
     ("geometry", "fraction"), [("sphere", 1 / 6), ("cylinder", 1 / 4), ("slab", 1 / 2)]
 )
 def test_characteristic_length_per_geometry(geometry, fraction):
-    """L = V_p/S_p (Aris 1957; REFERENCES.md section 1): sphere R/3 = dp/6, infinite cylinder
+    """L = V_p/S_p (Aris 1957): sphere R/3 = dp/6, infinite cylinder
     R/2 = dp/4, slab of thickness dp (half-thickness l, sealed edges) L = l = dp/2."""
     dp = np.array([[20e-6, 1e-3, 3e-3]])
     np.testing.assert_allclose(characteristic_length(geometry, dp), fraction * dp, rtol=1e-15)

@@ -32,14 +32,14 @@ def demo_fit() -> FitResult:
 
 
 def test_demo_recovers_truth_within_intervals(demo_fit):
-    # recovery (STYLE.md 14b): each true parameter of the generator lies in its 95 % interval
+    # recovery (common practice): each true parameter of the generator lies in its 95 % interval
     for name, true in TRUTH.items():
         lo, hi = demo_fit.parameters[name]["ci95"]
         assert lo <= true <= hi, (name, lo, true, hi)
 
 
 def test_results_contract(demo_fit, tmp_path):
-    # the results contract of DESIGN.md, field for field
+    # kinfit's results contract (README), field for field
     demo_fit.save(tmp_path)
     data = json.loads((tmp_path / "results.json").read_text())
     for p in data["parameters"].values():
@@ -66,7 +66,7 @@ def test_demo_regimes_match_the_generator(demo_fit):
 
 def test_single_speed_campaign_flags_agitation_exponent(tmp_path):
     # identifiability in the trade's words: with one stirrer speed the agitation exponent is
-    # not identified (DESIGN.md, "Uncertainty")
+    # not identified (common practice)
     for f in ("study.toml", "observations.csv"):
         shutil.copy(DEMO / f, tmp_path / f)
     runs = (DEMO / "runs.csv").read_text().replace(",1200.0,", ",300.0,")

@@ -553,7 +553,7 @@ REGRESSIONS = {
         lambda: _with_runs(_unit(1, "(")), r"unit '\(' is not recognised"),
     "value that overflows in SI (RuntimeWarning, then inf accepted)": (
         lambda: _with_runs(lambda h, r: (_unit(5, "kmol/L")(h, r), _cell(0, 5, "1e306")(h, r))),
-        r"row 1, column 'initial_concentration \[kmol/L\]': 1e\+306 kmol/L overflows once "
+        r"row 2, column 'initial_concentration \[kmol/L\]': 1e\+306 kmol/L overflows once "
         r"converted to SI units"),
     "row with extra fields (pandas message with a newline)": (
         lambda: _with_runs(lambda h, r: r[1].extend(["x", "y"])),

@@ -81,7 +81,7 @@ def _corr_lnk_E(T, T_ref):
 
 
 def test_schwaab_pinto_correlation_check_values():
-    """REFERENCES.md section 7 [calc], T = 300, 310, ..., 350 K: corr(ln k_ref, E) = 0.99861380
+    """Schwaab & Pinto 2007; values computed, T = 300, 310, ..., 350 K: corr(ln k_ref, E) = 0.99861380
     with T_ref = inf (plain k0), 0.05242303 with T_ref = 325 K, and 0 at the harmonic mean
     324.1007 K (Schwaab & Pinto 2007)."""
     T = np.arange(300.0, 351.0, 10.0)
@@ -93,7 +93,7 @@ def test_schwaab_pinto_correlation_check_values():
 
 
 def test_decorrelating_reference_temperature_weights_and_errors():
-    """Weighted form 1/T_ref = sum(w/T)/sum(w) (REFERENCES.md section 7, derived)."""
+    """Weighted form 1/T_ref = sum(w/T)/sum(w) (Schwaab & Pinto 2007, derived)."""
     T = np.array([300.0, 350.0])
     assert decorrelating_reference_temperature(T, weights=[1.0, 0.0]) == pytest.approx(300.0)
     assert decorrelating_reference_temperature(T, weights=[3.0, 1.0]) == pytest.approx(
@@ -209,7 +209,7 @@ def test_contract_derivative_matches_central_difference(name, rng):
 
 @pytest.mark.parametrize("name", sorted(RATE_LAWS))
 def test_contract_rate_vanishes_at_equilibrium_and_is_forward_above(name, rng):
-    """r(C_eq) = 0 and r > 0 above C_eq: a forward reaction (DESIGN.md coupling bracket)."""
+    """r(C_eq) = 0 and r > 0 above C_eq: a forward reaction (the bracket of the surface balance)."""
     options, p = EXAMPLES[name]
     law = make_rate_law(name, **options)
     _, T, C0 = _inputs(rng)
@@ -262,7 +262,7 @@ POWER_P = {"k_ref": 2.0, "activation_energy": 5e4}
 
 
 def test_power_law_k_is_rate_at_reference_concentration():
-    """DESIGN.md: k in mol/(kg s) at C_ref, so its unit does not change with the order."""
+    """kinfit's convention: k in mol/(kg s) at C_ref, so its unit does not change with the order."""
     law = PowerLaw(reference_temperature=320.0, reference_concentration=500.0)
     orders = np.array([[0.0], [0.5], [1.0], [2.0], [3.0]])
     r = law.rate(500.0, 320.0, {**POWER_P, "order": orders})
@@ -271,7 +271,7 @@ def test_power_law_k_is_rate_at_reference_concentration():
 
 def test_power_law_zero_order_is_a_heaviside_step():
     """Zero order: rate k for C > 0, 0 for C <= 0 (brief; the dead-zone convention of
-    REFERENCES.md section 2)."""
+    Aris 1965; Bischoff 1965)."""
     law = PowerLaw(reference_temperature=320.0)
     C = np.array([-5.0, 0.0, 1e-12, 1.0, 1e4])
     r = law.rate(C, 320.0, {**POWER_P, "order": 0.0})

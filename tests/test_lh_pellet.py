@@ -256,6 +256,9 @@ def test_points_outside_the_domain_fall_back_to_the_numerical_solver():
     assert 0 < out.sum() < out.size
     g, dg, eta, phi, _ = tab(Cs)
     g0, dg0, eta0, phi0, _ = num(Cs)
+    # the fallback points run the same Newton solver (tol 1e-10 of Cs) in another batch, so
+    # they may stop an iteration apart: 1e-9 on eta, 1e-6 on the forward-difference slope;
+    # phi is a closed form of the inputs (rounding only)
     np.testing.assert_allclose(eta[out], eta0[out], rtol=1e-9)
     np.testing.assert_allclose(dg[out], dg0[out], rtol=1e-6)
     np.testing.assert_allclose(phi[out], phi0[out], rtol=1e-12)

@@ -2,7 +2,7 @@
 
 Source: NIST Statistical Reference Datasets, nonlinear least-squares regression (Statistical
 Engineering Division, Information Technology Laboratory; certified values computed in 128-bit
-arithmetic), the 27 ``.dat`` files of ``shared/data/nist-strd`` (see its README for provenance).
+arithmetic), the 27 ``.dat`` files in ``tests/data/nist-strd`` (see its README for provenance).
 Score: log relative error (LRE) of McCullough (1998), "Assessing the reliability of statistical
 software: Part I", *The American Statistician* 52(4), 358-366, capped at 11 digits.
 
@@ -15,6 +15,8 @@ the default settings and asks for 4 digits ("the solver got the answer").
 
 from __future__ import annotations
 
+import hashlib
+import re
 import warnings
 from functools import cache
 
@@ -25,11 +27,7 @@ from nist import DATASETS, MODELS, NistDataset, load, lre, nist_dir
 from kinfit.estimate.least_squares import Estimate, fit_problem
 from kinfit.estimate.problem import Problem, Space
 
-FOLDER = nist_dir()
-pytestmark = pytest.mark.skipif(
-    FOLDER is None,
-    reason="NIST StRD folder not found at <repo>/../shared/data/nist-strd nor in $KINFIT_NIST_DIR",
-)
+FOLDER = nist_dir()  # inside the repository: a missing or altered file fails, never skips
 
 TARGET = {"lower": 6.0, "average": 6.0, "higher": 4.0}
 SE_TARGET = 3.0
@@ -38,7 +36,6 @@ TIGHT = dict(xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=5000)
 
 @cache
 def dataset(name: str) -> NistDataset:
-    assert FOLDER is not None
     return load(name, FOLDER)
 
 
@@ -84,9 +81,17 @@ def se_lre(ds: NistDataset, est: Estimate) -> float:
     return float(lre(se, ds.certified_se).min())
 
 
-def test_all_27_files_present() -> None:
+def test_all_27_files_present_and_unaltered() -> None:
     found = sorted(p.stem for p in FOLDER.glob("*.dat"))
-    assert found == sorted(DATASETS)
+    assert found == sorted(DATASETS), f"NIST StRD files missing from {FOLDER.name}/"
+    # byte for byte NIST's distribution: SHA-256 sums listed in the folder's README
+    listed = dict(
+        (m.group(2), m.group(1))
+        for m in re.finditer(r"^([0-9a-f]{64})  (\S+\.dat)$", (FOLDER / "README.md").read_text(), re.M)
+    )
+    assert sorted(listed) == sorted(f"{n}.dat" for n in DATASETS)
+    for name, digest in listed.items():
+        assert hashlib.sha256((FOLDER / name).read_bytes()).hexdigest() == digest, name
     levels = [dataset(n).level for n in DATASETS]
     assert (levels.count("lower"), levels.count("average"), levels.count("higher")) == (8, 11, 8)
 

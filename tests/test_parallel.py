@@ -397,7 +397,7 @@ def test_candidate_models_fit_identically_in_a_process_pool(campaign, pool):
 # a real Dask cluster on loopback
 # ------------------------------------------------------------------------------------------
 def test_bootstrap_through_a_dask_local_cluster(campaign):
-    distributed = pytest.importorskip("distributed")
+    import distributed  # dask[distributed] is a declared test dependency: missing fails
     _, _, problem, est = campaign
     ref = bootstrap(problem, est, n_boot=4, kind="group", seed=9, progress=False)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, host="127.0.0.1",

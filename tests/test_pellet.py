@@ -53,7 +53,7 @@ def power_rate(n, phi, Cs, *, a_shape=None):
 # --------------------------------------------------------------------------------------------
 # first order: Thiele (1939); Aris (1957, 1975) closed forms
 
-# REFERENCES.md section 1, Table 1: eta in the Aris normalisation phi_L = (Vp/Sp) sqrt(k/De)
+# closed forms of Thiele 1939 and Aris 1957, values computed from them: eta in the Aris normalisation phi_L = (Vp/Sp) sqrt(k/De)
 TABLE1 = {
     0.1: (0.9966799462, 0.9950331057, 0.9940509699),
     0.5: (0.9242343145, 0.8927799318, 0.8762494526),
@@ -63,7 +63,7 @@ TABLE1 = {
     10.0: (0.0999999996, 0.0974670508, 0.0966666667),
     50.0: (0.0200000000, 0.0198997475, 0.0198666667),
 }
-# REFERENCES.md section 1, Table 2: radius form phi_R = R sqrt(k/De) (sphere, cylinder)
+# closed forms of Thiele 1939, values computed from them: radius form phi_R = R sqrt(k/De) (sphere, cylinder)
 TABLE2 = {
     0.1: (0.9993339676, 0.9987520798),
     0.5: (0.9837204824, 0.9699984503),
@@ -77,7 +77,7 @@ TABLE2 = {
 
 @pytest.mark.parametrize("phi", sorted(TABLE1))
 def test_first_order_aris_table1(phi):
-    # Thiele (1939), Aris (1957): closed forms; values REFERENCES.md Table 1 [calc], given to
+    # Thiele (1939), Aris (1957): closed forms; values computed from the closed forms, given to
     # 10 decimals: agreement within half a unit of the last decimal (6e-11 absolute)
     for geometry, expected in zip(GEOMETRIES, TABLE1[phi], strict=True):
         assert eta_first_order(phi, geometry) == pytest.approx(expected, rel=1e-9, abs=6e-11)
@@ -85,7 +85,7 @@ def test_first_order_aris_table1(phi):
 
 @pytest.mark.parametrize("phi_R", sorted(TABLE2))
 def test_first_order_radius_table2(phi_R):
-    # REFERENCES.md Table 2 (radius form); sphere phi_L = phi_R/3, cylinder phi_L = phi_R/2
+    # computed from the closed form (radius form); sphere phi_L = phi_R/3, cylinder phi_L = phi_R/2
     sphere, cylinder = TABLE2[phi_R]
     assert eta_first_order(phi_R / 3.0, "sphere") == pytest.approx(sphere, rel=1e-9, abs=6e-11)
     assert eta_first_order(phi_R / 2.0, "cylinder") == pytest.approx(cylinder, rel=1e-9,
@@ -95,10 +95,10 @@ def test_first_order_radius_table2(phi_R):
 @pytest.mark.parametrize(("geometry", "c"), [("slab", 1 / 3), ("cylinder", 1 / 2),
                                              ("sphere", 3 / 5)])
 def test_first_order_small_modulus_coefficient(geometry, c):
-    # REFERENCES.md section 1 (derived, [calc]): eta = 1 - c phi_L^2, c = 1/3, 1/2, 3/5
+    # Thiele 1939; Aris 1957 (derived, [calc]): eta = 1 - c phi_L^2, c = 1/3, 1/2, 3/5
     for phi in (1e-2, 1e-3):
         assert (1.0 - eta_first_order(phi, geometry)) / phi**2 == pytest.approx(c, rel=3 * phi)
-    # next terms in the radius form (REFERENCES.md section 1, checked with 50-digit arithmetic)
+    # next terms in the radius form (Thiele 1939; Aris 1957, checked with 50-digit arithmetic)
     x = 0.05
     series = {"slab": 1 - x**2 / 3 + 2 * x**4 / 15,
               "cylinder": 1 - (2 * x) ** 2 / 8 + (2 * x) ** 4 / 48,
@@ -108,9 +108,9 @@ def test_first_order_small_modulus_coefficient(geometry, c):
 
 
 def test_first_order_sphere_small_modulus_against_mpmath():
-    # Numerical trap of REFERENCES.md section 1: (1/phi)[coth 3phi - 1/(3phi)] cancels for
+    # Numerical trap of Thiele 1939; Aris 1957: (1/phi)[coth 3phi - 1/(3phi)] cancels for
     # small phi; compare with 50-digit arithmetic (mpmath, a general-purpose library)
-    mpmath = pytest.importorskip("mpmath")
+    import mpmath  # a declared test dependency: missing is a failure
     mpmath.mp.dps = 50
     for phi in (1e-8, 1e-6, 1e-4, 1e-3, 0.01, 0.033, 0.034, 0.1, 1.0):
         x = 3 * mpmath.mpf(phi)
@@ -119,7 +119,7 @@ def test_first_order_sphere_small_modulus_against_mpmath():
 
 
 def test_first_order_large_modulus():
-    # Aris (1975) asymptotes (REFERENCES.md section 1, derived): sphere 1/phi - 1/(3 phi^2)
+    # Aris (1975) asymptotes (Thiele 1939; Aris 1957, derived): sphere 1/phi - 1/(3 phi^2)
     # (exact up to exponentially small terms), cylinder 1/phi - 1/(4 phi^2) + O(phi^-3),
     # slab 1/phi; no overflow at large moduli (exponentially scaled Bessel functions)
     for phi in (1e3, 1e5, 1e8, 1e300):
@@ -145,7 +145,7 @@ def test_geometry_names_and_errors():
 # --------------------------------------------------------------------------------------------
 # n-th order (tabulated): Aris (1965), Bischoff (1965), Petersen (1965) normalisation
 
-# REFERENCES.md section 2, slab table (solve_bvp [calc], 6 decimals)
+# Aris 1965; Bischoff 1965, slab table (solve_bvp [calc], 6 decimals)
 SLAB_N = {0.1: (0.997781, 0.995585), 0.5: (0.946294, 0.904476), 1.0: (0.806929, 0.726468),
           2.0: (0.498047, 0.462643), 5.0: (0.200000, 0.199108), 10.0: (0.100000, 0.099976)}
 
@@ -167,7 +167,7 @@ def test_power_law_first_order_is_the_closed_form(geometry):
 
 @pytest.mark.parametrize("n", [0.0, 0.2, 0.5, 0.8, 0.95])
 def test_dead_zone_slab_is_exactly_one_over_phi(n):
-    # REFERENCES.md section 2 (derived from the first integral): for a slab the centre reaches
+    # Aris 1965; Bischoff 1965 (derived from the first integral): for a slab the centre reaches
     # zero at Phi_c = (1+n)/(1-n) and beyond it eta = 1/Phi exactly
     phi_c = (1 + n) / (1 - n)
     beyond = phi_c * np.array([1.0001, 1.01, 1.5, 3.0, 10.0, 1e3, 1e5]) if phi_c < 1e3 else \
@@ -181,19 +181,19 @@ def test_dead_zone_slab_is_exactly_one_over_phi(n):
 
 
 def test_zero_order_slab():
-    # REFERENCES.md section 2 (derived, exact): eta = 1 for Phi <= 1, 1/Phi beyond
+    # Aris 1965; Bischoff 1965 (derived, exact): eta = 1 for Phi <= 1, 1/Phi beyond
     phi = np.concatenate([np.logspace(-3, -1e-4, 40), np.logspace(1e-4, 3, 40)])
     expected = np.where(phi <= 1.0, 1.0, 1.0 / phi)
     assert rel(eta_power_law(phi, 0.0, "slab"), expected) < 1e-9
 
 
-# REFERENCES.md section 2, zero-order sphere check values [calc]
+# Aris 1965; Bischoff 1965, zero-order sphere check values [calc]
 ZERO_SPHERE = {0.6: 0.99537037, 1.0: 0.76961205, 2.0: 0.44357199, 5.0: 0.19105940,
                10.0: 0.09777146, 50.0: 0.01991106}
 
 
 def zero_order_sphere(phi):
-    """Dead core: 1 - 3 xi^2 + 2 xi^3 = 1/(3 Phi^2), eta = 1 - xi^3 (REFERENCES.md section 2,
+    """Dead core: 1 - 3 xi^2 + 2 xi^3 = 1/(3 Phi^2), eta = 1 - xi^3 (Aris 1965; Bischoff 1965,
     derived); eta = 1 while Phi <= 1/sqrt(3)."""
     if phi <= 1 / np.sqrt(3):
         return 1.0
@@ -213,7 +213,7 @@ def test_zero_order_sphere_reference_values():
 def test_large_modulus_limit(geometry, n):
     # Aris (1965) normalisation: eta -> 1/Phi for every shape and order; the first correction
     # 1 - a(n+1)/((n+3)(a+1) Phi) is derived here (boundary-layer first integral) and reduces
-    # to 1/3 (sphere) and 1/4 (cylinder) at first order (REFERENCES.md section 1)
+    # to 1/3 (sphere) and 1/4 (cylinder) at first order (Thiele 1939; Aris 1957)
     a = SHAPES[geometry]
     phi = np.array([1e2, 1e3, 1e4, 1e6, 1e8])
     y = eta_power_law(phi, n, geometry) * phi
@@ -305,14 +305,18 @@ def test_power_law_properties(geometry):
 
 @pytest.mark.slow
 def test_table_file_matches_a_fresh_build():
-    # the shipped kinfit/data/power_law_eta.npz must be what the code builds
-    if not _pellet_table.TABLE_FILE.exists():
-        pytest.skip("no pre-built table file")
+    # the shipped kinfit/data/power_law_eta.npz (package data: its absence is a failure) must be
+    # what the code builds. Every field is a logarithm (ln eta, ln eta Phi, ln Phi/Phi_c), so an
+    # absolute difference is a relative one in eta. The nodes come from DOP853 runs at rtol
+    # 1e-12 over long trajectories, whose last digits differ between CPUs and libm builds
+    # (measured up to 2.3e-9 near ln eta = -4 on another x86-64 machine); the interpolated eta
+    # is stated good to 5e-6 relative (_pellet_table docstring), so node values that agree to
+    # 5e-8, 1 % of that, give the same table for every use.
     with np.load(_pellet_table.TABLE_FILE) as data:
         for geometry, a in SHAPES.items():
             fresh = _pellet_phase.grid_values(a)
             for field, val in fresh.items():
-                assert np.allclose(data[f"{geometry}/{field}"], val, rtol=0, atol=1e-11)
+                assert np.allclose(data[f"{geometry}/{field}"], val, rtol=0, atol=5e-8)
 
 
 # --------------------------------------------------------------------------------------------
@@ -329,7 +333,7 @@ def test_generalized_modulus_power_formula():
         phi = generalized_modulus_power(LEN, kv, Cs, n, DE, C_REF)
         num = generalized_modulus(lambda C, n=n, kv=kv: kv * (C / C_REF) ** n, Cs, DE, LEN)
         assert rel(phi, num) < 1e-12
-    # first order: the Aris modulus L sqrt(k/De) with k = k_v/C_ref (REFERENCES.md section 1)
+    # first order: the Aris modulus L sqrt(k/De) with k = k_v/C_ref (Thiele 1939; Aris 1957)
     assert generalized_modulus_power(LEN, 100.0, 7.0, 1.0, DE, C_REF) == pytest.approx(
         LEN * np.sqrt(100.0 / C_REF / DE), rel=1e-15)
     assert generalized_modulus_power(LEN, 1.0, 0.0, 0.5, DE, C_REF) == np.inf
@@ -338,7 +342,7 @@ def test_generalized_modulus_power_formula():
 
 
 def test_generalized_modulus_langmuir_hinshelwood():
-    # REFERENCES.md section 2 (derived): int_0^Cs kC/(1+KC) dC = (k/K)[Cs - ln(1+K Cs)/K]
+    # Aris 1965; Bischoff 1965 (derived): int_0^Cs kC/(1+KC) dC = (k/K)[Cs - ln(1+K Cs)/K]
     k, K = 3.0, np.array([[1e-4], [1e-2], [1.0]])
     Cs = np.array([[0.5, 10.0, 800.0]])
     integral = (k / K) * (Cs - np.log1p(K * Cs) / K)

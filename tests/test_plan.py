@@ -10,10 +10,12 @@ import json
 import math
 import warnings
 from itertools import combinations_with_replacement
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import optimize
 from studies import (
     numbered,
     profile_rows,
@@ -24,6 +26,7 @@ from studies import (
     write_study,
 )
 
+from kinfit.errors import StudyError
 from kinfit.fitting import FitOptions, fit
 from kinfit.plan import (
     _logdet,
@@ -88,17 +91,24 @@ def _first_order(est, T, N, dp):
 
 def test_recommended_diameter_meets_weisz_prater(fitted_campaign, plan):
     # first order: Psi_L = eta phi_L^2 whatever the film does (Weisz & Prater 1954; Aris
-    # normalisation); limit 0.3 (L/R)^2 = 0.3/9 for a sphere (kinfit.criteria)
+    # normalisation); limit where the first-order sphere eta is 0.95, Psi_L = 0.0852 (from the
+    # closed form, Thiele 1939; kinfit.criteria)
     _, study, res = fitted_campaign
-    dp = plan.tests["recommended"]["particle_diameter"]
-    assert dp is not None and 1e-6 < dp < 200e-6
+    rec = plan.tests["recommended"]
+    limit = rec["diameter_limit"]
+    assert limit is not None and 1e-6 < limit < 200e-6
     est = res.estimates()
-    psi = [_first_order(est, r.temperature, r.stirrer_speed, dp)[2] for r in study.runs]
-    assert max(psi) < 0.3 / 9
+    psi = [_first_order(est, r.temperature, r.stirrer_speed, limit)[2] for r in study.runs]
+    psi_lim = 0.95 * optimize.brentq(
+        lambda x: (1 / np.tanh(3 * x) - 1 / (3 * x)) / x - 0.95, 1e-3, 5.0, xtol=1e-15) ** 2
+    assert max(psi) < psi_lim * (1 + 1e-6)
     # and it is the boundary, not merely some small size: 3 % larger particles fail
-    psi_up = [_first_order(est, r.temperature, r.stirrer_speed, 1.03 * dp)[2]
+    psi_up = [_first_order(est, r.temperature, r.stirrer_speed, 1.03 * limit)[2]
               for r in study.runs]
-    assert max(psi_up) > 0.3 / 9
+    assert max(psi_up) > psi_lim
+    # the proposal is a standard fraction no coarser than the limit
+    dp = rec["particle_diameter"]
+    assert dp <= limit and "fraction" in rec["particle_fraction"]
 
 
 def test_recommended_speed_meets_carberry(fitted_campaign, plan):
@@ -118,8 +128,10 @@ def test_recommended_speed_meets_carberry(fitted_campaign, plan):
         return max(out)
 
     assert carberry(N) < 0.05
-    if N > 10.5 / 60:  # above the searched range's lower end the speed is a boundary
-        assert carberry(0.97 * N) > 0.05
+    # the speed is on the 50 rpm grid and is the slowest such speed that meets the limit
+    assert round(N * 60) % 50 == 0 and abs(N * 60 - round(N * 60)) < 1e-9
+    if N * 60 > 50.5:
+        assert carberry(N - 50 / 60) > 0.05
     assert rec["stirrer_speed"] >= min(r.stirrer_speed for r in study.runs)
 
 
@@ -205,3 +217,60 @@ def test_plan_command_writes_a_runs_table(fitted_campaign, plan):
         assert row[1] + 273.15 == pytest.approx(run["temperature"])
         assert row[2] / 60 == pytest.approx(run["stirrer_speed"])
     assert (out / "plan.md").read_text().startswith("# Next runs")
+
+
+def test_d_optimal_proposes_distinct_runs():
+    # behaviour: one candidate dominates, so a choice with repeats would take it twice
+    from kinfit.plan import d_optimal
+
+    m0 = 0.1 * np.eye(2)
+    cands = np.array([np.diag([5.0, 5.0]), np.diag([1.0, 0.0]), np.diag([0.0, 1.0])])
+    chosen, _ = d_optimal(m0, cands, 2)
+    assert len(set(chosen)) == 2 and 0 in chosen
+    with pytest.raises(StudyError, match="only 3 distinct candidate"):
+        d_optimal(m0, cands, 4)
+
+
+def test_sieve_apertures_and_fractions():
+    # ASTM E11 Table 1 (from memory): No. 325 = 45 um, No. 200 = 75 um, No. 100 = 150 um,
+    # No. 60 = 250 um, No. 18 = 1.00 mm; successive apertures step by about 2^(1/4) (the
+    # R40/3 series of ISO 565) from 32 um up; below, 20-25-32 um step by about 1.25
+    from kinfit.sieves import ASTM_E11_APERTURES, practical_speed, sieve_fraction
+
+    um = [round(a * 1e6) for a in ASTM_E11_APERTURES]
+    for size in (45, 75, 150, 250, 1000):
+        assert size in um
+    ratios = np.diff(np.log(ASTM_E11_APERTURES))
+    assert np.all(np.abs(ratios[2:] - math.log(2) / 4) < 0.025)
+    assert np.all(np.abs(ratios[:2] - math.log(1.25)) < 0.03)
+    d, upper, label = sieve_fraction(300e-6)
+    assert (round(upper * 1e6), label) == (300, "250-300 um sieve fraction")
+    assert d == pytest.approx(275e-6)
+    assert sieve_fraction(299e-6)[2] == "212-250 um sieve fraction"
+    assert round(60 * practical_speed(1868 / 60), 9) == 1900.0
+
+
+def test_demo_plan_uses_practical_conditions(tmp_path):
+    demo = Path(__file__).resolve().parents[1] / "examples" / "demo" / "study.toml"
+    from kinfit.study import load_study
+
+    study = load_study(demo)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = fit(study, FitOptions(profile=False, progress=False))
+    plan = plan_runs(study, res, n_runs=4, seed=0, n_random=5)
+    labels = [c.label() for c in plan.chosen]
+    assert len(set(labels)) == len(labels)
+    rec = plan.tests["recommended"]
+    assert round(rec["stirrer_speed"] * 60, 6) % 50 == 0
+    assert rec["particle_fraction"]
+    statements = [r["agitation_test"] for r in plan.tests["runs"].values()]
+    assert all(s.startswith(("conclusive", "not conclusive")) for s in statements)
+    # a run stirred fast and with small, kinetic-regime particles gains nothing from a speed
+    # test: not every run is called conclusive
+    assert any(s.startswith("not conclusive") for s in statements)
+    sizes = [r["size_test"] for r in plan.tests["runs"].values()]
+    assert all(s.startswith(("conclusive", "not conclusive")) for s in sizes)
+    # a size test compares standard sieve fractions, nearest first
+    r03 = plan.tests["runs"]["R03"]
+    assert "212-250 um fraction" in r03["size_test"] or "not conclusive" in r03["size_test"]

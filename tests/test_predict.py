@@ -83,7 +83,7 @@ ROWS = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (50, 
 def test_first_order_matches_series_resistance_closed_form(tmp_path):
     # first order: 1/k_obs = 1/(kc a_m) + 1/(eta k1), eta of a sphere in the Aris
     # normalisation eta = (1/phi)[1/tanh(3 phi) - 1/(3 phi)], phi = L sqrt(k1 rho_p/De),
-    # L = dp/6, a_m = 6/(rho_p dp) (Aris 1957; Satterfield 1970; REFERENCES.md section 1);
+    # L = dp/6, a_m = 6/(rho_p dp) (Aris 1957; Satterfield 1970);
     # batch: C = C0 exp(-w k_obs t)
     rows = [(T, N, dp, 2, 0.5) for T in (50, 70) for N in (300, 900) for dp in (200, 500)]
     study, _, _ = synthetic(tmp_path, rows, k=2.0, kc=2e-5)
@@ -93,7 +93,10 @@ def test_first_order_matches_series_resistance_closed_form(tmp_path):
     times = np.linspace(0, 5400, 7)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RegimeWarning)
-        pred = predict_conditions(study, res, conds, times=times, seed=1, n_draws=50)
+        # w and C0 lie outside the campaign (one value each): the closed form checks the
+        # physics there, so the extrapolation is asked for
+        pred = predict_conditions(study, res, conds, times=times, seed=1, n_draws=50,
+                                  extrapolate=True)
     est = res.estimates()
     R, rho, De = 8.314462618, 1500.0, 3e-10
     for c in conds:
@@ -178,14 +181,30 @@ def test_posterior_draws_give_the_bands(tmp_path):
                                np.quantile(f, 0.95, axis=0), rtol=1e-12)
 
 
-def test_outside_range_warns(tmp_path):
+def test_outside_range_is_refused_unless_extrapolate(tmp_path):
+    # behaviour only (no outside source applies): a factor outside the campaign is refused
+    # with the reason; with extrapolate=True it warns once per reason and every output says so
     study, _, _ = synthetic(tmp_path, ROWS)
     res = quiet_fit(study)
     conds = parse_conditions("T=90 degC, N=600 rpm, dp=100 um", study)
-    with pytest.warns(RegimeWarning, match=r"temperature 90 degC lies outside .* 50 degC to "
-                                           r"70 degC"):
-        pred = predict_conditions(study, res, conds, n_draws=50, seed=0)
+    with pytest.raises(ExtrapolationRefused, match=r"T 90 degC lies outside the campaign's "
+                                                   r"50 degC to 70 degC: the rate constant's "
+                                                   r"Arrhenius law"):
+        predict_conditions(study, res, conds, n_draws=50, seed=0)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        pred = predict_conditions(study, res, conds, n_draws=50, seed=0, extrapolate=True)
+    texts = [str(w.message) for w in caught if issubclass(w.category, RegimeWarning)]
+    assert len(texts) == 1 and texts[0].startswith("EXTRAPOLATED on request")
+    assert not [w for w in caught if not issubclass(w.category, RegimeWarning)]
     assert pred.summary["P1"]["outside_range"][0]["factor"] == "temperature"
+    assert pred.extrapolated and pred.to_dict()["extrapolated"] is True
+    assert pred.frame["extrapolated"].all()
+    assert "[EXTRAPOLATED]" in pred.report() and "warning" not in pred.report()
+    # inside every range: nothing refused, nothing marked
+    inside = predict_conditions(study, res, parse_conditions("T=60 degC", study), n_draws=50,
+                                seed=0)
+    assert not inside.extrapolated and not inside.frame["extrapolated"].any()
 
 
 FILM_ROWS = [(T, 400, 150, 2, c0) for T in (50, 60, 70) for c0 in (0.5, 1.0)]
@@ -204,8 +223,8 @@ def test_refuses_film_only_extrapolation_to_other_speeds(tmp_path, capsys):
         with pytest.raises(ExtrapolationRefused, match="every run of the campaign was "
                                                        "film-limited"):
             predict_conditions(study, res, fast, n_draws=50)
-        pred = predict_conditions(study, res, fast, n_draws=50, allow_extrapolation=True)
-        assert any("extrapolated on request" in w for w in pred.warnings)
+        pred = predict_conditions(study, res, fast, n_draws=50, extrapolate=True)
+        assert any("EXTRAPOLATED on request" in w for w in pred.warnings)
         # inside the campaign's speed and size the prediction is not refused
         predict_conditions(study, res, parse_conditions("T=55 degC", study), n_draws=50)
     res.save(tmp_path / "fit")
@@ -218,7 +237,7 @@ def test_refuses_film_only_extrapolation_to_other_speeds(tmp_path, capsys):
         assert run_predict_command(args) == 1
     assert "refused" in capsys.readouterr().err
     args = parser.parse_args([str(tmp_path / "study.toml"), "--fit", str(tmp_path / "fit"),
-                              "--at", "T=60 degC, N=1200 rpm", "--allow-extrapolation",
+                              "--at", "T=60 degC, N=1200 rpm", "--extrapolate",
                               "--times", "0, 30, 60 min", "--out", str(tmp_path / "p")])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RegimeWarning)
@@ -240,7 +259,7 @@ def test_conditions_from_a_table(tmp_path):
     assert conds[1].temperature == pytest.approx(338.15)
     assert conds[1].stirrer_speed == pytest.approx(700 / 60)
     (tmp_path / "bad.csv").write_text("run,temperature [degC]\nA,warm\n")
-    with pytest.raises(StudyError, match=r"bad.csv, row 1, column 'temperature \[degC\]'"):
+    with pytest.raises(StudyError, match=r"bad.csv, row 2, column 'temperature \[degC\]'"):
         conditions_from_argument(str(tmp_path / "bad.csv"), study)
 
 
@@ -260,3 +279,78 @@ def test_parse_times():
     np.testing.assert_allclose(parse_times("0, 10, 20 min"), [0, 600, 1200])
     with pytest.raises(StudyError, match="increasing"):
         parse_times("10, 5 min")
+
+
+def test_zwietering_just_suspended_speed_by_hand():
+    # Zwietering (1958), Chem. Eng. Sci. 8, eq. 1: N_js = S nu^0.1 dp^0.2 (g drho/rho_L)^0.45
+    # X^0.13 D^-0.85 (rev/s); worked here by hand with logarithms for water-like liquid
+    # (nu 1e-6 m^2/s, rho_L 1000 kg/m^3), dp 100 um, drho 1500 kg/m^3, X = 1, D 5 cm, S 6
+    from kinfit.suspension import zwietering_speed
+
+    log10_n = (math.log10(6) + 0.1 * -6 + 0.2 * -4 + 0.45 * math.log10(9.80665 * 1.5)
+               + 0.13 * 0 - 0.85 * math.log10(0.05))
+    got = zwietering_speed(kinematic_viscosity=1e-6, particle_diameter=1e-4,
+                           density_difference=1500.0, liquid_density=1000.0,
+                           solids_percent=1.0, impeller_diameter=0.05, s=6.0)
+    assert got == pytest.approx(10 ** log10_n, rel=1e-12)
+    # the exponents of the correlation: doubling D lowers N_js by 2^-0.85, doubling dp
+    # raises it by 2^0.2
+    base = dict(kinematic_viscosity=1e-6, particle_diameter=1e-4, density_difference=1500.0,
+                liquid_density=1000.0, solids_percent=1.0, impeller_diameter=0.05, s=6.0)
+    assert zwietering_speed(**{**base, "impeller_diameter": 0.1}) / got == pytest.approx(
+        2 ** -0.85, rel=1e-12)
+    assert zwietering_speed(**{**base, "particle_diameter": 2e-4}) / got == pytest.approx(
+        2 ** 0.2, rel=1e-12)
+
+
+def test_suspension_check_warns_below_the_just_suspended_speed(tmp_path):
+    from kinfit.study import load_study
+    from kinfit.suspension import suspension_check
+
+    study, _, _ = synthetic(tmp_path, ROWS)
+    res = quiet_fit(study)
+    conds = parse_conditions("T=60 degC, N=300 rpm, dp=200 um", study)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        pred = predict_conditions(study, res, conds, n_draws=50, seed=0)
+    assert not caught
+    assert pred.summary["P1"]["suspension"]["assessed"] is False
+    assert "not assessed" in pred.summary["P1"]["suspension"]["message"]
+    path = tmp_path / "study.toml"
+    path.write_text(path.read_text() + '\n[vessel]\nimpeller_diameter = "5 cm"\n'
+                    'suspension_constant = 8.0\n\n[fluid]\nsolvent = "water"\n')
+    study2 = load_study(path)
+    check = suspension_check(study2, temperature=333.15, stirrer_speed=5.0,
+                             particle_diameter=200e-6, catalyst_loading=2.0)
+    assert check.assessed and check.suspended is False
+    assert check.n_js > 5.0
+    with pytest.warns(RegimeWarning, match="below the just-suspended speed"):
+        pred2 = predict_conditions(study2, res, conds, n_draws=50, seed=0)
+    assert pred2.summary["P1"]["suspension"]["suspended"] is False
+    path.write_text(path.read_text().replace("suspension_constant = 8.0",
+                                             "suspension_constant = -1"))
+    with pytest.raises(StudyError, match="suspension_constant must be a positive number"):
+        load_study(path)
+
+
+def test_unidentified_film_only_fit_is_refused_without_raw_warnings(tmp_path, capsys):
+    # a covariance that is not positive definite (what a fit of film-limited runs with the
+    # kinetics left free gives) is refused with exit 1 and the trade's reason, not with raw
+    # numpy warnings and the bad-input code
+    from kinfit.cli import main
+
+    study, _, _ = synthetic(tmp_path, FILM_ROWS, k=20.0, kc=1e-5, vary_k=False)
+    res = quiet_fit(study)
+    p = len(res.correlation["names"])
+    bad = np.eye(p)
+    bad[0, 0] = -1.0
+    res = replace(res, extras={**res.extras, "covariance": bad.tolist()})
+    res.save(tmp_path / "fit")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        code = main(["predict", str(tmp_path / "study.toml"), "--fit", str(tmp_path / "fit"),
+                     "--at", "T=55 degC", "--out", str(tmp_path / "p")])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert "not positive definite: every run of the campaign was film-limited" in err
+    assert "RuntimeWarning" not in err and "positive-semidefinite" not in err

@@ -37,7 +37,7 @@ CAS = {
 # Wilke & Chang (1955)
 # ---------------------------------------------------------------------------------------------
 
-# REFERENCES.md section 5, "Check values at T = 298.15 K, V_A = 100 cm^3/mol" [calc] table:
+# Wilke & Chang 1955, check values computed at T = 298.15 K, V_A = 100 cm^3/mol:
 # solvent, association factor, viscosity [cP], D [cm^2/s]. Molar masses from standard atomic
 # weights (from memory).
 WILKE_CHANG_TABLE = [
@@ -50,7 +50,7 @@ WILKE_CHANG_TABLE = [
 
 @pytest.mark.parametrize(("solvent", "phi", "mu_cP", "M_g", "D_cm2"), WILKE_CHANG_TABLE)
 def test_wilke_chang_reference_table(solvent, phi, mu_cP, M_g, D_cm2):
-    """REFERENCES.md section 5 check values (Wilke & Chang 1955 formula), 5 significant figures."""
+    """check values computed (Wilke & Chang 1955 formula), 5 significant figures."""
     D = wilke_chang(298.15, mu_cP * 1e-3, M_g * 1e-3, 100e-6, phi)
     assert D == pytest.approx(D_cm2 * 1e-4, rel=1e-4)
 
@@ -119,7 +119,7 @@ def test_water_density_against_iapws95():
 
 @pytest.mark.parametrize(("solvent", "mu_cP"), [(s, m) for s, _, m, _, _ in WILKE_CHANG_TABLE])
 def test_viscosity_at_25C_matches_reference_table(solvent, mu_cP):
-    """Viscosities at 298.15 K listed in REFERENCES.md section 5 (Wilke-Chang table): 1.5 %."""
+    """Viscosities at 298.15 K from memory (handbook values of the solvents, as in Wilke & Chang 1955): 1.5 %."""
     fluid = make_fluid(solvent, diffusivity=1e-9)
     assert float(fluid.viscosity(298.15)) == pytest.approx(mu_cP * 1e-3, rel=0.015)
 
@@ -228,7 +228,7 @@ def test_check_temperature_names_the_range():
 
 
 def test_effective_diffusivity_formula_and_broadcast():
-    """D_e = eps_p D_m / tau (Satterfield 1970, from memory; REFERENCES.md section 5)."""
+    """D_e = eps_p D_m / tau (Satterfield 1970, from memory)."""
     tau = np.array([[2.0], [4.0]])
     Dm = np.array([1e-9, 2e-9, 3e-9])
     De = effective_diffusivity(0.4, Dm, tau)

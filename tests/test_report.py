@@ -109,8 +109,8 @@ def write_posterior_files(study_path: Path, fit_dir: Path, *, seed: int = 5) -> 
     for n in [*names, "sigma"]:
         v = frame[n].to_numpy()
         q05, q50, q95 = np.quantile(v, [0.05, 0.5, 0.95])
-        summary[n] = {"median": q50, "q05": q05, "q95": q95, "hdi94": [float(np.quantile(
-            v, 0.03)), float(np.quantile(v, 0.97))], "rhat": 1.002, "ess": 410.0}
+        summary[n] = {"median": q50, "q05": q05, "q95": q95, "hdi90": [float(np.quantile(
+            v, 0.05)), float(np.quantile(v, 0.95))], "rhat": 1.002, "ess": 410.0}
     runs = {rid: {"effectiveness_factor": {"median": 1.0, "q05": 1.0, "q95": 1.0},
                   "thiele_modulus": {"median": 0.0, "q05": 0.0, "q95": 0.0},
                   "regime_probability": {"kinetic": 0.0 if r["regime"] == "film" else 0.9,
@@ -285,7 +285,8 @@ def test_embedded_images_decode(full_report):
         assert ET.fromstring(s).tag == "svg"
 
 
-def test_html_renders_in_headless_chromium(full_report, tmp_path):
+def _chromium() -> str:
+    """The headless browser; a skip locally when absent, a failure in CI."""
     exe = shutil.which("chromium") or ("/usr/bin/chromium"
                                        if Path("/usr/bin/chromium").exists() else None)
     if exe is None:
@@ -293,6 +294,11 @@ def test_html_renders_in_headless_chromium(full_report, tmp_path):
             pytest.fail("chromium is not installed but CI is set: install Debian's 'chromium' "
                         "package (apt-get install -y chromium) so the report can be rendered")
         pytest.skip("chromium not installed (set CI to make this a failure)")
+    return exe
+
+
+def test_html_renders_in_headless_chromium(full_report, tmp_path):
+    exe = _chromium()
     shot = tmp_path / "shot.png"
     profile = tmp_path / "profile"
     profile.mkdir()
@@ -310,11 +316,61 @@ def test_html_renders_in_headless_chromium(full_report, tmp_path):
     assert 0.03 < non_white < 0.9, non_white
 
 
+@pytest.mark.parametrize("width", [400, 1280])
+def test_page_fits_phone_and_desktop_width(full_report, tmp_path, width):
+    """At phone (400 px) and desktop (1280 px) width the page is no wider than the viewport
+    (wide tables and equations scroll inside their own boxes) and every equation is drawn at
+    no less than 90 % of its natural size (measured in Chromium; tests/page_probe.py)."""
+    from page_probe import measure
+
+    d = measure(_chromium(), full_report.html, width, tmp_path)
+    assert d["viewport"] == width
+    assert d["page"] <= width, d
+    assert d["overflow"] == [], d["overflow"]
+    assert len(d["equations"]) >= 10 and min(d["equations"]) >= 0.9, d["equations"]
+    for key, t in d["tables"].items():  # a table wider than its card scrolls inside it
+        assert t["card"] is not None and t["card"] <= width, key
+
+
+DEMO = Path(__file__).resolve().parent.parent / "examples" / "demo" / "study.toml"
+DEMO_FIT = Path(__file__).resolve().parent.parent / "reports" / "demo"
+
+
+@pytest.mark.skipif(not (DEMO_FIT / "diagnosis.json").is_file(),
+                    reason="the committed demo outputs are absent")
+def test_demo_model_free_matrix_fits_one_screen(tmp_path):
+    """The demo's 36 model-free tests read as one matrix (factor and held conditions by
+    temperature) no taller than one 1280 x 800 screen, with the method stated once per
+    kind of test and every cell's runs in the notes beneath; the report is built from the
+    committed demo outputs (invented demo data) and measured in Chromium."""
+    from page_probe import measure
+
+    from kinfit.report import build_report
+
+    exe = _chromium()
+    fit = tmp_path / "fit"
+    shutil.copytree(DEMO_FIT, fit)
+    res = build_report(DEMO, fit, tmp_path / "out")
+    diag = json.loads((fit / "diagnosis.json").read_text())
+    table = next(b for s in res.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Model-free tests"))
+    temps = {round(t["fixed"]["temperature"], 2) for t in diag["model_free"]}
+    assert len(table.rows) * len(temps) == len(diag["model_free"])
+    assert len(table.header) == 2 + len(temps)
+    md = (tmp_path / "out" / "report.md").read_text(encoding="utf-8")
+    assert md.count("Method") <= 2  # profiles against t, and against w t for the loading
+    assert all(" vs ".join(t["runs"]) in md for t in diag["model_free"])
+    d = measure(exe, res.html, 1280, tmp_path)
+    t8 = next(t for t in d["tables"].values() if "Model-free tests" in t["caption"])
+    assert t8["height"] <= 800 and t8["width"] <= t8["card"], t8
+
+
 def test_sections_follow_the_data(full_report):
     rep = full_report.report
     assert full_report.notes == ()  # no figure or section failed quietly
     keys = [s.key for s in rep.sections]
-    assert keys == ["summary", "campaign", "model", "parameters", "fit", "identifiability",
+    assert keys == ["summary", "campaign", "model", "parameters", "fit", "adequacy",
+                    "identifiability",
                     "comparison", "transport", "posterior", "validity", "cautions",
                     "reproducibility"]
     md = full_report.markdown.read_text(encoding="utf-8")
@@ -339,6 +395,10 @@ def test_csv_tables_carry_the_saved_numbers(fitted, full_report):
             assert params.loc[name, "ci95_bootstrap_hi"] == p["ci95_bootstrap"][1]
     post = json.loads((full_report.out_dir.parent / "fit" / "posterior.json").read_text())
     assert params.loc["sigma", "posterior_median"] == post["parameters"]["sigma"]["median"]
+    # the 90 % highest-density interval beside the central 90 % one (results contract: hdi90)
+    assert params.loc["sigma", "posterior_hdi90_lo"] == post["parameters"]["sigma"]["hdi90"][0]
+    assert not any("hdi94" in c for c in params.columns)
+    assert "HDI 90 %" in (full_report.out_dir / "report.md").read_text(encoding="utf-8")
     runs = pd.read_csv(full_report.out_dir / "runs.csv").set_index("run")
     for rid, r in res.runs.items():
         assert runs.loc[rid, "regime"] == r["regime"]
@@ -382,7 +442,7 @@ def test_number_formatting():
 
 @pytest.mark.parametrize(("geometry", "column"), [("slab", 0), ("cylinder", 1), ("sphere", 2)])
 def test_first_order_effectiveness_reference_values(geometry, column):
-    """Closed forms (Thiele 1939; Aris 1957) in the Aris normalisation against REFERENCES.md
+    """Closed forms (Thiele 1939; Aris 1957) in the Aris normalisation against values computed from them
     Table 1 ([calc], checked there against solve_bvp to 10 decimals)."""
     from kinfit.report.figures import eta_first_order
 
@@ -396,7 +456,7 @@ def test_first_order_effectiveness_reference_values(geometry, column):
     phi = np.array(sorted(table))
     expected = np.array([table[p][column] for p in phi])
     np.testing.assert_allclose(eta_first_order(phi, geometry), expected, rtol=0, atol=2e-10)
-    # small-modulus series: eta ~ 1 - c phi^2, c = 1/3, 1/2, 3/5 (REFERENCES.md section 1)
+    # small-modulus series: eta ~ 1 - c phi^2, c = 1/3, 1/2, 3/5 (Thiele 1939; Aris 1957)
     c = (1 / 3, 1 / 2, 3 / 5)[column]
     small = np.array([1e-4, 5e-3])
     np.testing.assert_allclose(1 - eta_first_order(small, geometry), c * small**2, rtol=2e-3)
@@ -534,16 +594,22 @@ def test_command_hooks_and_changed_inputs(fitted, tmp_path, capsys):
     add_report_arguments(parser)
     args = parser.parse_args([str(copy / "study.toml"), "--out", str(out)])
     assert args.fit is None
+    with pytest.raises(StudyError, match="obs.csv changed since the fit"):
+        run_report_command(args)  # refused unless asked for
+    args = parser.parse_args([str(copy / "study.toml"), "--out", str(out),
+                              "--allow-changed-data"])
     assert run_report_command(args) == 0
     captured = capsys.readouterr()
     assert "wrote" in captured.out and "differs from the files" in captured.err
     md = (out / "report.md").read_text(encoding="utf-8")
     assert "obs.csv differ or are missing" in md
-    assert re.search(r"obs\.csv \| [0-9a-f]{64} \| \*\*DIFFERENT from the fitted file", md)
-    assert re.search(r"runs\.csv \| [0-9a-f]{64} \| same", md)
+    assert re.search(r"obs\.csv \| [0-9a-f]{16}… \| \*\*DIFFERENT from the fitted file", md)
+    assert re.search(r"runs\.csv \| [0-9a-f]{16}… \| same", md)
     man = json.loads((out / "report_manifest.json").read_text())
     assert "report.html" in man["written"]
-    assert man["inputs"][str(out / "results.json")]["sha256"]
+    # recorded relative to the study file, never as an absolute path
+    assert man["inputs"]["../out/results.json"]["sha256"]
+    assert man["study"] == "study.toml" and str(tmp_path) not in json.dumps(man)
 
 
 def test_every_equation_renders():
@@ -557,3 +623,133 @@ def test_every_equation_renders():
         assert root.tag == "svg" and all(el.get("id", f"t{i}-").startswith(f"t{i}-")
                                          for el in root.iter())
     assert equation_svg(r"\frac{a}{", prefix="bad") is None
+
+
+def test_posterior_summaries_render_to_their_mcse_digits(fitted, tmp_path):
+    # HTML, Markdown and LaTeX print a posterior median and interval to the digits its Monte
+    # Carlo standard error supports (last digit: the power of ten at or above 2 MCSE, at least
+    # 2 significant digits; tests/test_sampling.py checks the rule), while posterior.json and
+    # parameters.csv keep full precision. Hand-worked: sigma median 0.0123456, MCSE 3e-5
+    # -> 2 MCSE = 6e-5 -> last digit 1e-4 -> "0.0123"; q05 0.0111111, MCSE 4e-6 -> "0.01111";
+    # q95 0.0135791, MCSE 4e-4 -> "0.014"; HDI ends 0.0109876 (MCSE 2e-4) -> "0.011" and
+    # 0.0138642 (MCSE 1e-6) -> "0.01386". k_ref: median 0.140045 with MCSE 2.3e-4 -> "0.140".
+    from kinfit.report import build_report
+
+    path, fit_dir = fitted
+    fit_copy = tmp_path / "fit"
+    shutil.copytree(fit_dir, fit_copy)
+    write_posterior_files(path, fit_copy)
+    post = json.loads((fit_copy / "posterior.json").read_text())
+    post["parameters"]["sigma"].update(
+        median=0.0123456, q05=0.0111111, q95=0.0135791, hdi90=[0.0109876, 0.0138642],
+        mcse={"median": 3e-5, "q05": 4e-6, "q95": 4e-4, "hdi90": [2e-4, 1e-6]})
+    post["parameters"]["k_ref"].update(
+        median=0.140045, q05=0.13603, q95=0.14412,
+        mcse={"median": 2.3e-4, "q05": 4e-4, "q95": 4e-5, "hdi90": [None, None]})
+    (fit_copy / "posterior.json").write_text(json.dumps(post))
+    res = build_report(path, fit_copy, tmp_path / "report", argv=["kinfit", "report", "x"])
+    out = res.out_dir
+    for name in ("report.md", "report.html"):
+        text = (out / name).read_text()
+        assert "0.0123" in text and "0.01235" not in text, name
+        assert "[0.01111, 0.014]" in text, name       # parameter table and posterior summary
+        assert "[0.011, 0.01386]" in text, name       # HDI 90 %
+        assert "0.140" in text and "0.1400" not in text, name
+        assert "[0.136, 0.1441]" in text, name
+    tex = (out / "parameters.tex").read_text()
+    assert "$0.140$ & [$0.136$, $0.1441$]" in tex
+    params = pd.read_csv(out / "parameters.csv").set_index("parameter")
+    assert params.loc["sigma", "posterior_median"] == 0.0123456  # full precision kept
+
+
+def test_regime_probability_has_one_source(fitted, tmp_path):
+    """A run's regime probability appears in the console of 'kinfit diagnose' (from
+    diagnosis.json) and in the report: the report takes it from diagnosis.json too, so the two
+    agree even when the sampler's own summary (another subsample of draws) differs."""
+    from kinfit.report import build_report
+
+    path, fit_dir = fitted
+    fit = tmp_path / "fit"
+    shutil.copytree(fit_dir, fit)
+    write_posterior_files(path, fit)
+    write_diagnosis_file(fit)
+    diag = json.loads((fit / "diagnosis.json").read_text())
+    diag["runs"] = {"S1": {"regime_probability": {"kinetic": 0.09, "film": 0.91, "pore": 0.0,
+                                                  "mixed": 0.0}}}
+    diag["model"] = {"n_draws": 200}
+    (fit / "diagnosis.json").write_text(json.dumps(diag))
+    res = build_report(path, fit, tmp_path / "out")
+    table = next(b for s in res.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Posterior probability of each regime"))
+    assert "diagnosis.json, 200 posterior draws" in table.caption
+    assert [r for r in table.rows if r[0] == "S1"][0][1:3] == ("0.09", "0.91")
+
+
+def test_units_as_the_user_wrote_them(full_report):
+    """Temperatures in °C when the runs table gave degC, activation energy in kJ/mol (the
+    trade's unit; the CSV keeps SI), micrometres written µm, never 'um' (common practice)."""
+    md = (full_report.out_dir / "report.md").read_text(encoding="utf-8")
+    assert "activation_energy [kJ/mol]" in md and "J/mol]" not in md.replace("kJ/mol]", "")
+    assert "**T_ref:** 50 °C" in md
+    assert not re.search(r"\d um\b|\bum\b", md)
+    params = pd.read_csv(full_report.out_dir / "parameters.csv").set_index("parameter")
+    assert params.loc["activation_energy", "unit"] == "J/mol"
+
+
+def test_plain_sentences_and_thresholds_in_words(full_report):
+    """No optimiser message, Python list or snake_case threshold key in the prose; the
+    thresholds table has one row per criterion, in words."""
+    from kinfit.report.builder import plain_message
+
+    assert plain_message("`ftol` termination condition is satisfied.") == (
+        "the sum of squares stopped falling (relative change below the tolerance)")
+    assert plain_message("something else.") == "something else"
+    md = (full_report.out_dir / "report.md").read_text(encoding="utf-8")
+    assert "termination condition" not in md and "['" not in md
+    table = next(b for s in full_report.report.sections for b in s.blocks if b.kind == "table"
+                 and b.caption.startswith("Thresholds in use"))
+    labels = [r[0] for r in table.rows]
+    assert len(labels) == len(set(labels)) and not any(re.search(r"[a-z]_[a-z]", x)
+                                                       for x in labels), labels
+
+
+def _legend_covers_points(fig) -> int:
+    """How many plotted markers lie inside a legend box (display coordinates)."""
+    fig.canvas.draw()
+    boxes = [leg.get_window_extent() for ax in fig.axes for leg in [ax.get_legend()] if leg]
+    boxes += [leg.get_window_extent() for leg in fig.legends]
+    hits = 0
+    for ax in fig.axes:
+        for line in ax.get_lines():
+            if line.get_linestyle() not in ("None", "none", ""):
+                continue
+            xy = ax.transData.transform(np.column_stack(line.get_data()).astype(float))
+            hits += sum(int(b.contains(x, y)) for b in boxes for x, y in xy)
+    return hits
+
+
+def test_legends_stay_off_the_data():
+    """The residual and Arrhenius legends sit outside the axes: no marker under a legend box;
+    in the Arrhenius plot the runs are drawn above the apparent constants (invented points)."""
+    from kinfit.report import figures as fg
+
+    rng = np.random.default_rng(4)
+    n = 60
+    frame = pd.DataFrame({"run": np.repeat(["A", "B", "C"], n // 3),
+                          "time [s]": np.tile(np.linspace(0, 3600, n // 3), 3),
+                          "fitted": rng.uniform(100, 500, n), "residual": rng.normal(0, 2, n)})
+    fig = fg.residuals_figure(frame, regimes={"A": "kinetic", "B": "film", "C": "pore"},
+                              unit="mol/m³", sigma=2.0)
+    assert _legend_covers_points(fig) == 0
+    T = [313.15, 328.15, 343.15]
+    fig = fg.arrhenius_figure(k_ref=1.0, activation_energy=6e4, reference_temperature=328.15,
+                              temperatures=T, k_unit="mol/(kg s)",
+                              per_run=[("R1", t, float(np.exp(-6e4 / 8.314 * (1 / t - 1 / 328.15))),
+                                        "kinetic") for t in T],
+                              apparent=[(t, float(np.exp(-6e4 / 8.314 * (1 / t - 1 / 328.15))))
+                                        for t in T], apparent_label="apparent at 300 rpm, 10 µm")
+    assert _legend_covers_points(fig) == 0
+    ax = fig.axes[0]
+    runs = next(ln for ln in ax.get_lines() if ln.get_label() == "run (kinetic)")
+    app = next(ln for ln in ax.get_lines() if ln.get_label().startswith("apparent at"))
+    assert runs.get_zorder() > app.get_zorder()

@@ -160,39 +160,39 @@ BAD_CASES = {
     ),
     "non-numeric cell": (
         dict(obs=_edit(OBS, "A2,10,0.41", "A2,10,abc")),
-        r"obs\.csv, run 'A2', row 5, column 'concentration \[mol/L\]': 'abc' is not a number",
+        r"obs\.csv, run 'A2', row 6, column 'concentration \[mol/L\]': 'abc' is not a number",
     ),
     "negative where positive required": (
         dict(runs=_edit(RUNS, "A3,45,900,150", "A3,45,900,-150")),
-        r"runs\.csv, run 'A3', row 3, column 'particle_diameter \[um\]': .*must be > 0",
+        r"runs\.csv, run 'A3', row 4, column 'particle_diameter \[um\]': .*must be > 0",
     ),
     "zero loading": (
         dict(runs=_edit(RUNS, "A2,45,900,50,2", "A2,45,900,50,0")),
-        r"run 'A2', row 2, column 'catalyst_loading \[g/L\]'.*must be > 0",
+        r"run 'A2', row 3, column 'catalyst_loading \[g/L\]'.*must be > 0",
     ),
     "temperature below absolute zero": (
         dict(runs=_edit(RUNS, "A1,45", "A1,-300")),
-        r"run 'A1', row 1, column 'temperature \[degC\]'.*above absolute zero",
+        r"run 'A1', row 2, column 'temperature \[degC\]'.*above absolute zero",
     ),
     "empty cell": (
         dict(obs=_edit(OBS, "A3,10,0.45", "A3,10,")),
-        r"obs\.csv, run 'A3', row 8, column 'concentration \[mol/L\]': the cell is empty",
+        r"obs\.csv, run 'A3', row 9, column 'concentration \[mol/L\]': the cell is empty",
     ),
     "NaN cell": (
         dict(obs=_edit(OBS, "A3,10,0.45", "A3,10,nan")),
-        r"run 'A3', row 8, column 'concentration \[mol/L\]': 'nan' is not a finite number",
+        r"run 'A3', row 9, column 'concentration \[mol/L\]': 'nan' is not a finite number",
     ),
     "time not increasing": (
         dict(obs=_edit(OBS, "A1,20,0.33", "A1,5,0.33")),
-        r"obs\.csv, run 'A1', row 3, column 'time \[min\]': time does not increase",
+        r"obs\.csv, run 'A1', row 4, column 'time \[min\]': time does not increase",
     ),
     "duplicate run id": (
         dict(runs=_edit(RUNS, "A3,45", "A2,45")),
-        r"runs\.csv, run 'A2', row 3, column 'run': run id 'A2' appears twice",
+        r"runs\.csv, run 'A2', row 4, column 'run': run id 'A2' appears twice",
     ),
     "observations for unknown run": (
         dict(obs=OBS + "B9,0,0.5\n"),
-        r"obs\.csv, run 'B9', row 10, column 'run'.*runs table lacks",
+        r"obs\.csv, run 'B9', row 11, column 'run'.*runs table lacks",
     ),
     "run without observations": (
         dict(runs=RUNS + "A4,45,900,150,4,0.5\n"),
@@ -200,7 +200,7 @@ BAD_CASES = {
     ),
     "concentration above initial": (
         dict(obs=_edit(OBS, "A2,10,0.41", "A2,10,0.71")),
-        r"run 'A2', row 5, column 'concentration \[mol/L\]'.*exceeds the run's initial",
+        r"run 'A2', row 6, column 'concentration \[mol/L\]'.*exceeds the run's initial",
     ),
     "TOML syntax error": (
         dict(study=_edit(STUDY, 'geometry = "sphere"', 'geometry = "sphere')),
@@ -227,7 +227,7 @@ BAD_CASES = {
     "unknown key in a section": (
         dict(study=_edit(STUDY, 'particle_density = "1500 kg/m^3"',
                          'particle_density = "1500 kg/m^3"\nporosty = 0.5')),
-        r"\[catalyst\] has unknown key 'porosty'; allowed keys are",
+        r"\[catalyst\] has unknown key 'porosty' \(did you mean 'porosity'\?\); allowed keys are",
     ),
     "unknown section": (
         dict(study=STUDY + "\n[pelet]\ndiffusivity = \"direct\"\n"),

@@ -12,7 +12,7 @@ Then ln k_app is regressed on 1/T (Arrhenius), weighted by the variances of ln k
 95 % interval for E_app.
 
 Strong pore diffusion halves the activation energy and takes the order to (n + 1)/2
-(E_app = (E + E_D)/2; Weisz & Prater 1954; Satterfield 1970; from memory, REFERENCES.md
+(E_app = (E + E_D)/2; Weisz & Prater 1954; Satterfield 1970; from memory,
 section 2); film control gives an apparent activation energy near zero (that of the film
 coefficient, through the molecular diffusivity and viscosity) and an apparent first order.
 """
@@ -368,7 +368,7 @@ class FalsifiedResult:
 
 
 def _where(g: ApparentGroup) -> str:
-    return (f"{g.stirrer_speed * 60:.4g} rpm, {g.particle_diameter * 1e6:.4g} um"
+    return (f"{g.stirrer_speed * 60:.4g} rpm, {g.particle_diameter * 1e6:.4g} µm"
             + (f", batch {g.group}" if g.group else ""))
 
 

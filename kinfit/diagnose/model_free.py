@@ -33,7 +33,7 @@ same F test, which is one-way analysis of variance (Fisher 1925; checked against
 ``scipy.stats.f_oneway`` in the tests). When no level has replicates, the noise is taken from
 replicate rates elsewhere in the study, if there are any (constant noise assumed).
 
-Conclusions follow the trade's logic (common practice; DESIGN.md of kinfit): no change with
+Conclusions follow the trade's logic (common practice): no change with
 stirrer speed rules out film resistance only (and only if the film coefficient does change with
 speed over that range); no change with particle size at a fixed speed rules out film and pore
 resistance together; no change of the rate per catalyst mass with the loading rules out a supply
@@ -87,7 +87,7 @@ _MAX_SUGGESTED_RPM = 3000.0
 
 
 def format_factor(factor: str, value: float) -> str:
-    """A factor value in lab units, e.g. ``'1200 rpm'``, ``'30 um'``, ``'328.15 K'``.
+    """A factor value in lab units, e.g. ``'1200 rpm'``, ``'30 µm'``, ``'55 °C'``.
 
     Parameters
     ----------
@@ -97,11 +97,11 @@ def format_factor(factor: str, value: float) -> str:
         SI value (K, rev/s, m, kg/m^3, mol/m^3).
     """
     if factor == "temperature":
-        return f"{value:.5g} K"
+        return f"{value - 273.15:.4g} °C"
     if factor == "stirrer_speed":
         return f"{value * 60.0:.4g} rpm"
     if factor == "particle_diameter":
-        return f"{value * 1e6:.4g} um"
+        return f"{value * 1e6:.4g} µm"
     if factor == "catalyst_loading":
         return f"{value:.3g} g/L"
     if factor == "initial_concentration":
@@ -532,9 +532,9 @@ def _conclusion(cs: ComparisonSet, p: float, different: bool, direction: str) ->
     if f == "stirrer_speed":
         if not different:
             return (f"{head}: no difference ({_p(p)}): film resistance negligible at these "
-                    "conditions; says nothing about pore diffusion (and holds only if the film "
-                    "coefficient does change over this speed range, with the particles "
-                    "suspended at the lowest speed)")
+                    "conditions; this comparison leaves the pores untested (and holds only if "
+                    "the film coefficient does change over this speed range, with the "
+                    "particles suspended at the lowest speed)")
         if direction == "faster at higher":
             return (f"{head}: differ ({_p(p)}), faster at the higher speed: film resistance "
                     "at the lower speed(s); these runs are not intrinsic, raise the speed "
@@ -548,8 +548,9 @@ def _conclusion(cs: ComparisonSet, p: float, different: bool, direction: str) ->
                 "check reproducibility")
     if f == "particle_diameter":
         if not different:
-            return (f"{head}: no difference ({_p(p)}): both film resistance negligible and "
-                    "eta = 1 (no pore diffusion limit) at these conditions")
+            return (f"{head}: no difference ({_p(p)}): at one stirrer speed the size leaves "
+                    "the rate unchanged, so neither the film nor the pores limit it here "
+                    "(eta = 1)")
         if direction == "slower at higher":
             return (f"{head}: differ ({_p(p)}), slower in the larger particles: transport "
                     "resistance in the larger particles, pore diffusion (eta < 1) and/or film "
@@ -566,8 +567,8 @@ def _conclusion(cs: ComparisonSet, p: float, different: bool, direction: str) ->
     if not different:
         return (f"{head}: no difference in the rate per catalyst mass ({_p(p)}): the rate "
                 "scales with the catalyst mass, so no supply limit per reactor volume (such "
-                "as gas-liquid transfer of a dissolved reactant); says nothing about film or "
-                "pore transport at the particles, which scale with the catalyst mass too")
+                "as gas-liquid transfer of a dissolved reactant); film and pore transport at "
+                "the particles are not tested, since they scale with the catalyst mass too")
     if direction == "slower at higher":
         return (f"{head}: differ ({_p(p)}), the rate per catalyst mass falls as the loading "
                 "rises: a supply per reactor volume limits at the higher loading (gas-liquid "

@@ -95,7 +95,7 @@ class _Evaluator:
         virtual = Model(self.model.spec, replace(study, runs=runs), grid=self.model.grid)
         c = virtual.run_states(self.theta, thresholds=self.thresholds).criteria
         R = len(runs)
-        ca_lim = np.full(R, c.thresholds["carberry"])
+        ca_lim = np.broadcast_to(c.carberry_limit, (R,))
         wp_lim = np.full(R, c.thresholds["weisz_prater"])
         return np.asarray(c.carberry), np.asarray(c.weisz_prater), ca_lim, wp_lim
 
@@ -143,7 +143,7 @@ def _rpm(v: float) -> str:
 
 
 def _um(v: float) -> str:
-    return f"{v * 1e6:.4g} um"
+    return f"{v * 1e6:.4g} µm"
 
 
 def next_runs(model: Model, theta: Array, *, thresholds: Thresholds | None = None,
@@ -159,7 +159,7 @@ def next_runs(model: Model, theta: Array, *, thresholds: Thresholds | None = Non
     theta : ndarray, shape (p,)
         Fitted values of ``model.columns``.
     thresholds : Thresholds, optional
-        The limits (default: Ca < 0.05/|n|, Psi_R < 0.3).
+        The limits (default: Ca < 0.05/|n|, Psi_L at first-order eta 0.95).
     speed_range : (float, float)
         Speeds searched, rev/s (default 10 to 3000 rpm).
     diameter_range : (float, float)

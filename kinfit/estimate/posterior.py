@@ -21,7 +21,13 @@ from numpy.typing import NDArray
 
 from kinfit.errors import StudyError
 from kinfit.estimate.checkpoint import atomic_write
-from kinfit.estimate.convergence import HDI_PROB, Diagnostics, hdi
+from kinfit.estimate.convergence import (
+    HDI_PROB,
+    Diagnostics,
+    hdi,
+    mcse_quantile,
+    supported_digits,
+)
 from kinfit.estimate.problem import ErrorModel
 
 __all__ = ["Posterior", "SamplerSettings", "PredictiveBands"]
@@ -232,13 +238,28 @@ class Posterior:
 
     # -- summaries -----------------------------------------------------------------------------
     def summary(self) -> dict[str, dict[str, Any]]:
-        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi94`` [lo, hi], ``rhat``, ``ess``
-        (bulk), plus ``mean``, ``sd`` and ``ess_tail``; plain floats (None for NaN).
+        """Per quantity: ``median``, ``q05``, ``q95``, ``hdi90`` [lo, hi], ``rhat``, ``ess``
+        (bulk), plus ``mean``, ``sd``, ``ess_tail`` and ``mcse``; plain floats (None for NaN).
+
+        ``mcse`` holds the Monte Carlo standard errors of ``median``, ``q05``, ``q95`` and of
+        the two ``hdi90`` ends (each end as the quantile at the share of draws below it), by
+        :func:`~kinfit.estimate.convergence.mcse_quantile`. Values keep full precision here;
+        printed summaries round to the digits the MCSE supports
+        (:func:`~kinfit.estimate.convergence.supported_digits`).
 
         This is the ``posterior`` block of ``posterior.json`` in the results contract.
         """
         q = np.quantile(self.draws, [0.05, 0.5, 0.95], axis=0)
         h = hdi(self.draws, prob=HDI_PROB)
+        chain = self.chain
+        se = {key: mcse_quantile(chain, prob)
+              for key, prob in (("median", 0.5), ("q05", 0.05), ("q95", 0.95))}
+        se_hdi = np.full((len(self.names), 2), np.nan)
+        for j in range(len(self.names)):
+            for k in range(2):
+                share = float(np.mean(self.draws[:, j] <= h[j, k]))
+                if 0.0 < share < 1.0:
+                    se_hdi[j, k] = mcse_quantile(chain[:, :, j : j + 1], share)[0]
         mean = self.draws.mean(axis=0)
         sd = (
             self.draws.std(axis=0, ddof=1)
@@ -251,12 +272,16 @@ class Posterior:
                 "median": _num(q[1, j]),
                 "q05": _num(q[0, j]),
                 "q95": _num(q[2, j]),
-                "hdi94": [_num(h[j, 0]), _num(h[j, 1])],
+                "hdi90": [_num(h[j, 0]), _num(h[j, 1])],
                 "rhat": _num(self.rhat[j]),
                 "ess": _num(self.ess[j]),
                 "mean": _num(mean[j]),
                 "sd": _num(sd[j]),
                 "ess_tail": _num(self.ess_tail[j]),
+                "mcse": {
+                    **{key: _num(v[j]) for key, v in se.items()},
+                    "hdi90": [_num(se_hdi[j, 0]), _num(se_hdi[j, 1])],
+                },
             }
         return out
 
@@ -279,13 +304,21 @@ class Posterior:
 
         rows = []
         for name, s in self.summary().items():
-            row = {k: v for k, v in s.items() if k != "hdi94"}
-            row["hdi94_lo"], row["hdi94_hi"] = s["hdi94"]
+            row = {k: v for k, v in s.items() if k not in ("hdi90", "mcse")}
+            row["hdi90_lo"], row["hdi90_hi"] = s["hdi90"]
+            for key in ("median", "q05", "q95"):
+                row[f"mcse_{key}"] = s["mcse"][key]
             rows.append({"name": name, **row})
         return pd.DataFrame(rows).set_index("name")
 
     def report(self) -> str:
-        """A plain-text table of the summary and the convergence verdict."""
+        """A plain-text table of the summary and the convergence verdict.
+
+        Median and quantiles are printed to the digits their Monte Carlo standard error supports
+        (:func:`~kinfit.estimate.convergence.supported_digits`; 5 digits when it is unknown),
+        R-hat to 3 decimals and the ESS to 2 significant digits (both are estimates whose
+        run-to-run spread exceeds the digits dropped).
+        """
         lines = [
             f"posterior: {self.n_draws} draws ({self.chain_shape[1]} walkers, "
             f"{self.settings.n_steps} steps, burn-in {self.settings.burn_in}, thin "
@@ -293,10 +326,11 @@ class Posterior:
             f"{'name':<24}{'median':>13}{'q05':>13}{'q95':>13}{'rhat':>8}{'ess':>8}",
         ]
         for name, s in self.summary().items():
-            vals = [s["median"], s["q05"], s["q95"]]
-            nums = "".join(f"{v:>13.5g}" if v is not None else f"{'nan':>13}" for v in vals)
+            nums = "".join(f"{_mcse_text(s[k], s['mcse'][k]):>13}"
+                           for k in ("median", "q05", "q95"))
             rh = f"{s['rhat']:>8.3f}" if s["rhat"] is not None else f"{'nan':>8}"
-            es = f"{s['ess']:>8.0f}" if s["ess"] is not None else f"{'nan':>8}"
+            ess = None if s["ess"] is None else float(f"{s['ess']:.2g}")
+            es = f"{ess:>8.0f}" if ess is not None else f"{'nan':>8}"
             lines.append(f"{name:<24}{nums}{rh}{es}")
         lines.append(self.verdict)
         return "\n".join(lines)
@@ -349,17 +383,17 @@ class Posterior:
             {"posterior": post, "sample_stats": {"lp": lp}}, attrs={"posterior": self._attrs()}
         )
 
-    def to_netcdf(self, path: str | os.PathLike[str], *, engine: str = "auto") -> Path:
+    def to_netcdf(self, path: str | os.PathLike[str], *, engine: str = "h5netcdf") -> Path:
         """Write the draws to a NetCDF file atomically; returns the path.
 
         Parameters
         ----------
         path : path-like
-        engine : {"auto", "h5netcdf", "scipy"}
-            ``"h5netcdf"``: NetCDF-4 holding :meth:`to_datatree` (ArviZ's groups); needs h5py.
+        engine : {"h5netcdf", "scipy"}
+            ``"h5netcdf"`` (default): NetCDF-4 holding :meth:`to_datatree` (ArviZ's groups; read
+            it with ``xarray.open_datatree``); h5netcdf and h5py are declared dependencies.
             ``"scipy"``: NetCDF-3, one group holding the posterior variables and ``lp``
-            (read it with ``xarray.open_dataset``). ``"auto"`` takes h5netcdf when h5py is
-            importable, else scipy.
+            (read it with ``xarray.open_dataset``), for readers without HDF5.
 
         Notes
         -----
@@ -367,18 +401,11 @@ class Posterior:
         draws; settings and the verdict are stored as JSON in the ``kinfit_settings`` and
         ``kinfit_convergence`` attributes.
         """
-        engines = ("auto", "h5netcdf", "scipy")
+        engines = ("h5netcdf", "scipy")
         if engine not in engines:
             raise StudyError(
                 f"to_netcdf engine '{engine}' is not recognised; use one of {engines}"
             )
-        if engine == "auto":
-            try:
-                import h5py  # noqa: F401
-
-                engine = "h5netcdf"
-            except ImportError:
-                engine = "scipy"
         with _atomic_path(path) as tmp:
             if engine == "h5netcdf":
                 self.to_datatree().to_netcdf(tmp, engine="h5netcdf")
@@ -456,6 +483,15 @@ class Posterior:
             n_failed=int((~ok).sum()),
             noise=bool(noise),
         )
+
+
+def _mcse_text(value: float | None, mcse: float | None) -> str:
+    """``value`` to the significant digits its MCSE supports (5 when unknown), zeros kept."""
+    if value is None:
+        return "nan"
+    sig = supported_digits(value, mcse) or 5
+    text = f"{value:#.{sig}g}"
+    return text[:-1] if text.endswith(".") else text
 
 
 @contextlib.contextmanager

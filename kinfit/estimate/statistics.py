@@ -7,7 +7,7 @@ constant error model with unit weights this gives the textbook form
 
 .. math::  -2 \\ln \\hat L = n\\,[\\ln(2\\pi S/n) + 1], \\qquad k = p + 1,
 
-the convention of ``shared/REFERENCES.md`` §7. Many programs drop the constants and use
+the convention of Akaike 1974; Burnham & Anderson 2002. Many programs drop the constants and use
 ``n ln(S/n) + 2p`` instead; kinfit does not.
 """
 
@@ -212,7 +212,7 @@ def fit_statistics(
     ``lnL`` is :meth:`ErrorModel.loglike` at the ML scales (:func:`ml_error_scales`). For the
     constant model with weights this is
     ``-n/2 [ln(2 pi S_w/n) + 1] + (1/2) sum(ln w_i)``. ``k = p + n_scale``; AIC (Akaike 1974),
-    AICc (Hurvich & Tsai 1989), BIC (Schwarz 1978), as in ``shared/REFERENCES.md`` §7.
+    AICc (Hurvich & Tsai 1989), BIC (Schwarz 1978), as in Akaike 1974; Burnham & Anderson 2002.
 
     Examples
     --------

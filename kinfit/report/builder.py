@@ -2,7 +2,7 @@
 into the sections of the report once; :mod:`kinfit.report.render` writes them as Markdown and
 HTML. Sections appear as their data exist; nothing here fits or samples.
 
-Order: summary, campaign, model, parameters, fit to the data, correlation and identifiability,
+Order: summary, campaign, model, parameters, fit to the data, model adequacy, correlation and identifiability,
 model comparison, transport diagnosis, posterior, limits of validity, cautions, reproducibility.
 """
 
@@ -18,7 +18,9 @@ import pandas as pd
 
 from kinfit.campaign import TEST_MEANING
 from kinfit.criteria import REGIMES
+from kinfit.outputs import CAUTIONS, recorded_command, recorded_path
 from kinfit.report import figures as fg
+from kinfit.report.model_adequacy import adequacy_section, adequacy_summary
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -34,35 +36,81 @@ from kinfit.report.content import (
     factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
 from kinfit.report.equations import model_section
 from kinfit.report.inputs import ReportInputs
 from kinfit.report.latex import parameters_table
+from kinfit.report.matrix import SetCell, set_matrix
 from kinfit.report.transport_sections import posterior_section, transport_section
 from kinfit.study import FACTORS, comparison_sets
 
 __all__ = ["ReportBuilder", "build_content", "CAUTIONS"]
 
 #: the safety paragraph of README.md, in substance
-CAUTIONS = (
-    "These results feed reactor design, and reactor design can hurt people. kinfit estimates "
-    "kinetic and transport parameters from the data it was given; it does not assess safety.",
-    "Scale-up, heat removal, exotherms and thermal runaway, pressure relief, and the hazards "
-    "of hydrogen and other flammable or toxic gases under pressure are outside this tool.",
-    "Rates affected by external mass transfer cannot be carried to another reactor, and no "
-    "prediction outside the fitted ranges of temperature, stirrer speed, particle size and "
-    "concentration is warranted (see the limits of validity).",
-    "Check every number before use, and defer to local codes, standards and licensed "
-    "engineering practice.",
+
+def _runs_temperature_unit(study: Any) -> str | None:
+    """The unit of the runs table's temperature column as written (None if unreadable)."""
+    from kinfit.units import parse_header
+
+    ref = get_path(getattr(study, "raw", None), "data", "runs")
+    if isinstance(ref, Mapping):
+        ref = ref.get("file")
+    if not isinstance(ref, str):
+        return None
+    path = Path(study.path).parent / ref
+    try:
+        if path.suffix.lower() in (".xlsx", ".xls"):
+            cols = pd.read_excel(path, nrows=0).columns
+        else:
+            cols = pd.read_csv(path, nrows=0).columns
+        for c in cols:
+            h = parse_header(str(c), where=path.name)
+            if h.name == "temperature":
+                return h.unit
+    except Exception:  # noqa: BLE001 - a display preference only; K is the fallback
+        return None
+    return None
+
+
+#: a film share at or above this counts as film resistance worth a warning: the 5 % rate error
+#: the Carberry criterion allows (Carberry 1976: Ca < 0.05/|n|)
+FILM_SHARE_CUT = 0.05
+
+_SOLVER_WORDS = (
+    ("both `ftol` and `xtol`", "the sum of squares and the parameters both stopped changing "
+                               "(relative changes below the tolerances)"),
+    ("`ftol`", "the sum of squares stopped falling (relative change below the tolerance)"),
+    ("`xtol`", "the parameters stopped moving (relative step below the tolerance)"),
+    ("`gtol`", "the gradient vanished (below the tolerance)"),
+    ("maximum number of function evaluations", "the evaluation budget ran out before the "
+                                               "fit settled"),
 )
 
+
+def plain_message(message: Any) -> str:
+    """The optimiser's stopping message as a plain sentence fragment (scipy's
+    least_squares messages name the tolerance that stopped it)."""
+    text = str(message or "").strip()
+    low = text.lower()
+    for key, words in _SOLVER_WORDS:
+        if key.lower() in low:
+            return words
+    return text.rstrip(".") or "no message"
+
+
+def _short(digest: Any) -> str:
+    """A SHA-256 digest as tables show it: its first 16 hex digits (the manifests keep all
+    64)."""
+    text = str(digest)
+    return text[:16] + "…" if len(text) > 16 else text
+
+
 def _cmd(argv: Sequence[str]) -> str:
-    parts = [str(a) for a in argv]
-    if parts and Path(parts[0]).name in ("kinfit", "__main__.py", "cli.py"):
-        parts[0] = "kinfit"
-    return shlex.join(parts)
+    return shlex.join(recorded_command(argv))
 
 
 class ReportBuilder:
@@ -91,6 +139,40 @@ class ReportBuilder:
         self.units = {n: str(p.get("unit", "")) for n, p in self.res.parameters.items()}
         for name in (self.inp.posterior or {}).get("parameters", {}) or {}:
             self.units.setdefault(name, "mol/m^3" if name == "sigma" else "1")
+        self.celsius = _runs_temperature_unit(inputs.study) in ("degC", "°C", "celsius", "C")
+        self.varied = tuple(inputs.study.varied_factors())
+
+    def factor_text(self, factor: str, value: float) -> str:
+        """A factor's SI value in the unit the reader expects: temperature in °C when the
+        runs table gave it in degC, the others as :func:`factor_text`."""
+        if factor == "temperature" and self.celsius:
+            return f"{float(value) - 273.15:.4g} °C"
+        if factor == "catalyst_loading":  # kg/m³ = g/L, the unit a bench chemist writes
+            return f"{float(value):.4g} g/L"
+        if factor in FACTOR_LABEL:
+            _, unit, scale = FACTOR_LABEL[factor]
+            return f"{float(value) * scale:.4g} {unit}"
+        return factor_text(factor, value)
+
+    @staticmethod
+    def shown(value: Any, unit: Any) -> tuple[Any, str]:
+        """A value (number, interval or None) and its SI unit as the report shows them:
+        energies in kJ/mol, the trade's unit; everything else unchanged. CSV files and JSON
+        keep SI."""
+        if str(unit) == "J/mol":
+            if isinstance(value, int | float) and not isinstance(value, bool):
+                return value / 1000.0, "kJ/mol"
+            if isinstance(value, list | tuple):
+                return [None if v is None else v / 1000.0 for v in value], "kJ/mol"
+            return value, "kJ/mol"
+        return value, str(unit or "")
+
+    def temperature(self, value: Any, sig: int = 5) -> str:
+        """A temperature [K] as the user wrote it (°C when the runs table is in degC)."""
+        if not isinstance(value, int | float):
+            return "–"
+        return (f"{float(value) - 273.15:.{sig - 1}g} °C" if self.celsius
+                else f"{float(value):.{sig}g} K")
 
     # ------------------------------------------------------------------ numbering helpers
     def table(self, caption: str, header: Sequence[str], rows: Sequence[Sequence[str]], *,
@@ -119,7 +201,8 @@ class ReportBuilder:
     def build(self) -> Report:
         """All sections, the CSV tables and the LaTeX table."""
         makers = [self._summary, self._campaign, lambda: model_section(self), self._parameters,
-                  self._fit, self._identifiability, self._comparison,
+                  self._fit, lambda: adequacy_section(self), self._identifiability,
+                  self._comparison,
                   lambda: transport_section(self), lambda: posterior_section(self),
                   self._validity, self._cautions, self._reproducibility]
         sections = [s for s in (m() for m in makers) if s is not None]
@@ -140,7 +223,7 @@ class ReportBuilder:
         f, res = self.res.fit, self.res
         blocks: list[Any] = []
         if f.get("converged"):
-            blocks.append(Text(f"The least-squares fit converged ({f.get('message', '')}).",
+            blocks.append(Text(f"The least-squares fit converged: {plain_message(f.get('message'))}.",
                                "ok"))
         else:
             blocks.append(Text(
@@ -150,11 +233,13 @@ class ReportBuilder:
         varying = [(n, p) for n, p in res.parameters.items() if p.get("vary", True)]
         items = []
         for n, p in varying:
-            ci = fmt_interval(p.get("ci95"))
-            unit = fg.pretty_unit(p.get("unit"))
+            ci = fmt_interval(self.shown(p.get("ci95"), p.get("unit"))[0])
+            est, unit = self.shown(p.get("estimate"), p.get("unit"))
+            unit = fg.pretty_unit(unit)
             unit = "" if unit == "–" else f" {unit}"
-            items.append(f"{n} = {fmt(p.get('estimate'))}{unit}, 95 % interval {ci} "
+            items.append(f"{n} = {fmt(est)}{unit}, 95 % interval {ci} "
                          f"({p.get('ci_method') or 'linear'})")
+        blocks.extend(adequacy_summary(f, self.inp.posterior))
         blocks.append(Heading("Estimates"))
         blocks.append(Items(tuple(items)))
         intrinsic = [rid for rid, r in res.runs.items() if r.get("intrinsic")]
@@ -191,9 +276,9 @@ class ReportBuilder:
                                f"fitted: {', '.join(changed)} differ or are missing. Refit "
                                "before relying on this report.", "warning"))
         blocks.append(Facts((
-            ("study", f"{self.inp.study.name} ({self.inp.study.path})"),
+            ("study", f"{self.inp.study.name} ({Path(self.inp.study.path).name})"),
             ("model", str(res.model.get("label", ""))),
-            ("fit folder", str(self.inp.fit_dir)),
+            ("fit folder", self._rel(self.inp.fit_dir)),
             ("kinfit", str(get_path(res.manifest, "versions", "kinfit", default="?"))),
         )))
         return Section("summary", "Summary", tuple(blocks))
@@ -201,7 +286,7 @@ class ReportBuilder:
     def _campaign(self) -> Section:
         study = self.inp.study
         frame = study.frame()
-        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [kg/m³]", "C₀ [mol/m³]",
+        header = ("run", "T [K]", "T [°C]", "N [rpm]", "d_p [µm]", "w [g/L]", "C₀ [mol/m³]",
                   "points", "span [min]", "group")
         rows = []
         for r in study.runs:
@@ -228,7 +313,8 @@ class ReportBuilder:
                        numeric=(False,) + (True,) * 8 + (False,), csv="runs.csv"),
         ]
         varied = study.varied_factors()
-        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels ({', '.join(factor_text(f, x) for x in v)})"
+        items = [f"{FACTOR_LABEL[f][0]}: {len(v)} levels "
+                 f"({', '.join(self.factor_text(f, x) for x in v)})"
                  for f, v in varied.items()]
         blocks.append(Heading("Factors varied"))
         blocks.append(Items(tuple(items) or ("none: every run at the same conditions",)))
@@ -236,7 +322,7 @@ class ReportBuilder:
         if fixed:
             blocks.append(Text("Held constant: " + ", ".join(fixed) + "."))
         blocks.append(Heading("Transport tests the campaign supports"))
-        set_rows: list[tuple[str, ...]] = []
+        set_cells: list[SetCell] = []
         meanings: list[str] = []
         for factor, meaning in TEST_MEANING.items():
             label = FACTOR_LABEL[factor][0]
@@ -247,19 +333,19 @@ class ReportBuilder:
                 continue
             meanings.append(f"{label} ({len(sets)} set{'s' if len(sets) != 1 else ''}): tests "
                             f"{meaning}")
-            set_rows += [(label, " vs ".join(factor_text(factor, v) for v in s.values),
-                      ", ".join(factor_text(f, x) for f, x in s.fixed.items() if f in varied),
-                      ", ".join(s.runs)) for s in sets]
+            set_cells += [SetCell(factor, tuple(s.values), dict(s.fixed), " vs ".join(s.runs))
+                          for s in sets]
         if "temperature" not in varied:
             meanings.append("temperature: one level only, so the activation energy is not "
                             "identified")
         blocks.append(Items(tuple(meanings)))
-        if set_rows:
+        if set_cells:
+            m = set_matrix(set_cells, list(varied), self.factor_text)
             blocks.append(self.table(
                 "Sets of runs that differ in one factor only (the other factors equal within "
-                "1 %): the classic transport tests; their statistical outcome is in the "
-                "transport diagnosis.", ("factor varied", "levels", "others held at", "runs"),
-                set_rows))
+                "1 %): the classic transport tests, each cell the runs of one set at the "
+                "conditions of its row and column; their statistical outcome is in the "
+                "transport diagnosis.", m.header, m.rows))
         return Section("campaign", "Campaign", tuple(blocks))
 
     def _parameters(self) -> Section:
@@ -286,15 +372,24 @@ class ReportBuilder:
                                   "estimate": scale})
             q = post.get(name) or {}
             flag = " †" if p.get("at_bound") else ""
-            row = [f"{name} [{fg.pretty_unit(p.get('unit'))}]{flag}", fmt(p.get("estimate")),
-                   fmt(p.get("stderr"), 3) if p.get("vary", True) else "fixed"]
+            u = p.get("unit")
+            shown_unit = self.shown(None, u)[1]
+            row = [f"{name} [{fg.pretty_unit(shown_unit)}]{flag}",
+                   fmt(self.shown(p.get("estimate"), u)[0]),
+                   fmt(self.shown(p.get("stderr"), u)[0], 3) if p.get("vary", True)
+                   else "fixed"]
             tone: list[str | None] = [None, None, None]
             for k in labels:
                 if has[k]:
-                    row.append(fmt_interval(p.get(k), 3) if p.get("vary", True) else "–")
+                    row.append(fmt_interval(self.shown(p.get(k), u)[0], 3)
+                               if p.get("vary", True) else "–")
                     tone.append(None)
             if post:
-                row += [fmt(q.get("median")), fmt_interval([q.get("q05"), q.get("q95")], 3)
+                se = q.get("mcse") or {}
+                sh = self.shown
+                row += [fmt_mc(sh(q.get("median"), u)[0], sh(se.get("median"), u)[0]),
+                        fmt_interval_mc(sh([q.get("q05"), q.get("q95")], u)[0],
+                                        sh([se.get("q05"), se.get("q95")], u)[0], 3)
                         if q else "–"]
                 tone += [None, None]
             rows.append(row)
@@ -309,8 +404,8 @@ class ReportBuilder:
             if post:
                 csv_row.update({"posterior_median": q.get("median"), "posterior_q05":
                                 q.get("q05"), "posterior_q95": q.get("q95"),
-                                "posterior_hdi94_lo": (q.get("hdi94") or [None, None])[0],
-                                "posterior_hdi94_hi": (q.get("hdi94") or [None, None])[1],
+                                "posterior_hdi90_lo": (q.get("hdi90") or [None, None])[0],
+                                "posterior_hdi90_hi": (q.get("hdi90") or [None, None])[1],
                                 "rhat": q.get("rhat"), "ess": q.get("ess")})
             csv_rows.append(csv_row)
         self.csv["parameters.csv"] = pd.DataFrame(csv_rows)
@@ -347,7 +442,7 @@ class ReportBuilder:
         f = self.res.fit
         obs = self.inp.observations
         facts = [("converged", "yes" if f.get("converged") else "NO"),
-                 ("message", str(f.get("message", "")))]
+                 ("stopping rule", plain_message(f.get("message")))]
         for key, label in (("n_obs", "observations"), ("n_params", "parameters varied"),
                            ("dof", "degrees of freedom"), ("sse", "SSE"),
                            ("sigma", "residual standard deviation"),
@@ -493,11 +588,12 @@ class ReportBuilder:
                          "mol/m³"))
         items = ["Use the kinetics only inside these ranges; extrapolation in temperature, "
                  "particle size, stirrer speed or concentration is not supported by the data."]
-        film_runs = [rid for rid, r in res.runs.items()
-                     if r.get("regime") == "film" or (r.get("passes") or {}).get("carberry")
-                     is False]
+        film_runs = [rid for rid, r in res.runs.items() if r.get("regime") == "film"
+                     or float((r.get("shares") or {}).get("film") or 0.0) >= FILM_SHARE_CUT]
         if film_runs:
-            items.append("Film resistance matters in runs " + ", ".join(film_runs) + ": their "
+            items.append(f"The film takes {FILM_SHARE_CUT:.0%} or more of the driving force "
+                         "(the rate error the kinetic criteria allow) in runs "
+                         + ", ".join(film_runs) + ": their "
                          "observed rates depend on agitation and particle size in this vessel "
                          "and must not be carried to another reactor; only the intrinsic "
                          "parameters, with the film model, may be.")
@@ -530,14 +626,14 @@ class ReportBuilder:
         if rows:
             blocks.append(self.table("Input files of the fit with their SHA-256 digests, "
                                      "compared with the study files this report read.",
-                                     ("file", "SHA-256 at the fit", "study read now"), rows,
+                                     ("file", "SHA-256 at the fit (first 16 digits)", "study read now"), rows,
                                      tones=tones))
             if any(t[2] == "fail" for t in tones):
                 self.notes.append("the study read for this report differs from the files "
                                   "that were fitted (see the reproducibility section)")
-        read = [(name, digest) for name, digest in self.inp.input_hashes.items()]
+        read = [(name, _short(digest)) for name, digest in self.inp.input_hashes.items()]
         blocks.append(self.table("Files of the fit folder this report was built from.",
-                                 ("file", "SHA-256"), read))
+                                 ("file", "SHA-256 (first 16 digits)"), read))
         versions = man.get("versions") or {}
         if versions:
             blocks.append(Facts(tuple((k, str(v)) for k, v in versions.items())))
@@ -553,28 +649,36 @@ class ReportBuilder:
         if self.argv:
             blocks.append(Code(_cmd(self.argv), "command line of this report"))
         blocks.append(Code("\n".join(self._reproduce(man, opts)),
-                           "to reproduce (run from the folder the study paths are relative to)"))
+                           "to reproduce (run from the study file's folder)"))
         return Section("reproducibility", "Reproducibility", tuple(blocks))
 
     def _input_states(self) -> list[tuple[str, str, str]]:
         """(recorded path, recorded digest, state) of every input the fit recorded, compared
         with the study files read for this report (matched by path, else by file name)."""
+        base = Path(self.inp.study.path).resolve().parent
         now = {str(Path(k).resolve()): v for k, v in self.inp.study.files.items()}
         by_name = {Path(k).name: v for k, v in self.inp.study.files.items()}
         rows = []
         for path, info in ((self.res.manifest or {}).get("inputs") or {}).items():
             digest = info.get("sha256") if isinstance(info, Mapping) else str(info)
-            current = now.get(str(Path(path).resolve()), by_name.get(Path(path).name))
+            # recorded relative to the study file (older results: as typed or absolute)
+            current = now.get(str((base / path).resolve()),
+                              now.get(str(Path(path).resolve()), by_name.get(Path(path).name)))
             if current is None:
                 state = "not read by this study"
             else:
                 state = "same" if current == digest else "DIFFERENT from the fitted file"
-            rows.append((str(path), str(digest), state))
+            rows.append((self._rel(path) if Path(path).is_absolute() else str(path),
+                         _short(digest), state))
         return rows
 
+    def _rel(self, path: str | Path) -> str:
+        """A path as the report records it: relative to the study file's folder."""
+        return recorded_path(path, self.inp.study.path)
+
     def _reproduce(self, man: Mapping[str, Any], opts: Mapping[str, Any]) -> list[str]:
-        study = str(self.inp.study.path)
-        fit_dir = str(self.inp.fit_dir)
+        study = Path(self.inp.study.path).name
+        fit_dir = self._rel(self.inp.fit_dir)
         cmd = ["kinfit", "fit", study, "--out", fit_dir]
         if man.get("seed") is not None:
             cmd += ["--seed", str(man["seed"])]
@@ -599,7 +703,7 @@ class ReportBuilder:
                 if sampler.get(key) is not None:
                     s += [flag, str(sampler[key])]
             lines.append(shlex.join(s))
-        out = str(self.out_dir) if self.out_dir is not None else fit_dir
+        out = self._rel(self.out_dir) if self.out_dir is not None else fit_dir
         lines.append(shlex.join(["kinfit", "report", study, "--fit", fit_dir, "--out", out]))
         return lines
 

@@ -96,6 +96,7 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
     from kinfit.outputs import (
         manifest,
         prepare_out_dir,
+        recorded_path,
         write_bytes_atomic,
         write_frame_atomic,
         write_json_atomic,
@@ -118,8 +119,9 @@ def build_report(study: Study | str | Path, fit_dir: str | Path, out_dir: str | 
     html = write_text_atomic(out / "report.html", to_html(report))
     man = manifest(files={str(Path(inputs.fit_dir) / k): v
                           for k, v in inputs.input_hashes.items()},
-                   seed=inputs.result.manifest.get("seed"), argv=argv,
-                   extra={"study": str(inputs.study.path), "notes": list(report.notes),
+                   seed=inputs.result.manifest.get("seed"), argv=argv, base=inputs.study.path,
+                   extra={"study": recorded_path(inputs.study.path, inputs.study.path),
+                          "notes": list(report.notes),
                           "written": [str(p.relative_to(out)) for p in
                                       (html, markdown, *figures, *tables, latex)]})
     man_path = write_json_atomic(out / "report_manifest.json", man)
@@ -135,6 +137,23 @@ def add_report_arguments(parser: argparse.ArgumentParser) -> None:
                         help="folder with results.json from 'kinfit fit' (default: --out)")
     parser.add_argument("--out", type=Path, default=Path("reports"), metavar="DIR",
                         help="output folder of the report (default: reports)")
+    parser.add_argument("--allow-changed-data", action="store_true",
+                        help="write the report even though the study's files changed since "
+                             "the fit (the report then says so)")
+
+
+def _refuse_changed_data(study_path: Path, fit_dir: Path, *, allow: bool) -> None:
+    """Bad input (exit 2): a report would show results of other data than the study names."""
+    from kinfit.errors import StudyError
+    from kinfit.freshness import changed_inputs
+    from kinfit.results import FitResult
+    from kinfit.study import load_study
+
+    changed = changed_inputs(load_study(study_path), FitResult.load(fit_dir).manifest)
+    if changed and not allow:
+        raise StudyError(f"{', '.join(changed)} changed since the fit in {fit_dir}, so the "
+                         "report would show results of other data; refit with 'kinfit fit "
+                         f"{study_path} --out {fit_dir}', or pass --allow-changed-data")
 
 
 def run_report_command(args: argparse.Namespace) -> int:
@@ -143,6 +162,7 @@ def run_report_command(args: argparse.Namespace) -> int:
     from kinfit.report.render import FIGURE_DIR
 
     fit_dir = args.fit if args.fit is not None else args.out
+    _refuse_changed_data(args.study, fit_dir, allow=args.allow_changed_data)
     result = build_report(args.study, fit_dir, args.out, argv=sys.argv)
     print(f"wrote {result.html}, {result.markdown}, {len(result.figures)} figure files in "
           f"{result.out_dir / FIGURE_DIR}, {len(result.tables)} CSV tables, {result.latex.name}")

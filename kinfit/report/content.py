@@ -12,8 +12,9 @@ from typing import Any
 
 import pandas as pd
 
-__all__ = ["Text", "Items", "Facts", "Heading", "Equation", "Table", "FigureBlock", "Code",
-           "Section", "Report", "fmt", "fmt_interval", "fmt_p", "TONES", "FACTOR_LABEL",
+__all__ = ["Text", "Items", "Details", "Facts", "Heading", "Equation", "Table", "FigureBlock",
+           "Code", "Section", "Report", "fmt", "fmt_interval", "fmt_mc", "fmt_interval_mc", "fmt_p",
+           "TONES", "FACTOR_LABEL",
            "CRITERIA_KEYS", "factor_text", "get_path"]
 
 #: tones a block or cell may carry; renderers style them (warning, good news, regime labels)
@@ -37,6 +38,15 @@ class Items:
     items: tuple[str, ...]
     tone: str = "plain"
     kind: str = "items"
+
+
+@dataclass(frozen=True)
+class Details:
+    """A list folded behind a one-line summary (HTML ``<details>``; a list in Markdown)."""
+
+    summary: str
+    items: tuple[str, ...]
+    kind: str = "details"
 
 
 @dataclass(frozen=True)
@@ -210,6 +220,32 @@ def fmt_interval(pair: Sequence[Any] | None, sig: int = 4) -> str:
     lo = "open" if pair[0] is None else fmt(pair[0], sig)
     hi = "open" if pair[1] is None else fmt(pair[1], sig)
     return f"[{lo}, {hi}]"
+
+
+def fmt_mc(value: Any, mcse: Any, default: int = 4) -> str:
+    """A posterior summary to the digits its Monte Carlo standard error supports
+    (:func:`kinfit.estimate.convergence.supported_digits`: last digit the power of ten at or
+    above 2 MCSE, 2 to 6 significant digits); ``default`` digits when no MCSE is given."""
+    from kinfit.estimate.convergence import supported_digits
+
+    try:
+        sig = supported_digits(value, mcse)
+    except (TypeError, ValueError):
+        sig = None
+    if sig is None:
+        return fmt(value, default)
+    # rounded first, so that digits left of the point beyond ``sig`` print as zeros
+    return fmt(float(f"{float(value):.{sig - 1}e}"), sig)
+
+
+def fmt_interval_mc(pair: Sequence[Any] | None, mcse: Sequence[Any] | None,
+                    default: int = 4) -> str:
+    """``[lo, hi]`` with each end to the digits its own MCSE supports (see :func:`fmt_mc`)."""
+    if pair is None or len(pair) != 2:
+        return "–"
+    se = list(mcse) if mcse is not None and len(mcse) == 2 else [None, None]
+    ends = ["open" if v is None else fmt_mc(v, s, default) for v, s in zip(pair, se, strict=True)]
+    return f"[{ends[0]}, {ends[1]}]"
 
 
 def fmt_p(p: Any) -> str:

@@ -48,6 +48,10 @@ EQUATIONS = {
     "modulus_general": r"\Phi = \dfrac{L\,\rho_p\,r(C_s)}{\sqrt{2\int_{C_\mathrm{eq}}^{C_s}"
                        r"D_e\,\rho_p\,r(C)\,dC}}",
     "tortuosity": r"D_e = \dfrac{\varepsilon_p\,D_m}{\tau}",
+    "de_scaling": r"D_e(T) = D_{e,\mathrm{ref}}\,\dfrac{T}{T_\mathrm{ref}}\,"
+                  r"\dfrac{\mu(T_\mathrm{ref})}{\mu(T)}",
+    "kc_scaling": r"k_c(T) = k_c(T_\mathrm{ref})\left(\dfrac{D(T)}{D(T_\mathrm{ref})}"
+                  r"\right)^{2/3}\left(\dfrac{\nu(T)}{\nu(T_\mathrm{ref})}\right)^{-5/12}",
     "no_pellet": r"\eta = 1",
     "batch": r"\dfrac{dC_b}{dt} = -w\,r_\mathrm{obs}(C_b),\qquad C_b(0) = C_0",
     "differential": r"r_\mathrm{obs,measured} = r_\mathrm{obs}(C_0,\,T,\,N,\,d_p)",
@@ -80,7 +84,7 @@ def model_section(rb: ReportBuilder) -> Section:
     ))]
     refs = []
     if opts.get("reference_temperature") is not None:
-        refs.append(("T_ref", f"{fmt(opts['reference_temperature'], 5)} K"))
+        refs.append(("T_ref", rb.temperature(opts["reference_temperature"])))
     if opts.get("reference_concentration") is not None:
         refs.append(("C_ref", f"{fmt(opts['reference_concentration'])} mol/m³"))
     spec_film = getattr(rb.inp.spec, "film", None)
@@ -89,6 +93,11 @@ def model_section(rb: ReportBuilder) -> Section:
         value = getattr(spec_film, attr, None)
         if value is not None:
             refs.append((label, f"{fmt(value * scale)} {unit}"))
+    scaling = m.get("temperature_scaling") or {}
+    solvent = scaling.get("solvent") or "the liquid"
+    if scaling:
+        refs.append(("transport against T", f"pellet: {scaling.get('pellet_formula')}; "
+                     f"film: {scaling.get('film_formula')}"))
     if refs:
         blocks.append(Facts(tuple(refs)))
     blocks.append(Heading("Intrinsic rate"))
@@ -120,6 +129,10 @@ def model_section(rb: ReportBuilder) -> Section:
         if film == "agitation":
             blocks.append(Equation(EQUATIONS["agitation"], "agitation law of the film "
                                    "coefficient"))
+            if scaling.get("film") == "viscosity":
+                blocks.append(Equation(EQUATIONS["kc_scaling"], "film coefficient against "
+                                       f"temperature in {solvent} (D ~ T/μ, Stokes–Einstein; "
+                                       "Sano et al. 1974 form at fixed power input)"))
         else:
             detail = ", ".join(f"{k} = {v}" for k, v in (m.get("film_options") or {}).items()
                                if isinstance(v, str | int | float))
@@ -142,6 +155,10 @@ def model_section(rb: ReportBuilder) -> Section:
         if pellet == "tortuosity":
             blocks.append(Equation(EQUATIONS["tortuosity"], "effective diffusivity from "
                                    "porosity, molecular diffusivity and tortuosity"))
+        if scaling.get("pellet") == "viscosity":
+            blocks.append(Equation(EQUATIONS["de_scaling"], "effective diffusivity against "
+                                   f"temperature in {solvent} (Stokes–Einstein; Wilke & "
+                                   "Chang 1955)"))
     blocks.append(Heading("Reactor and error model"))
     reactor = m.get("reactor")
     blocks.append(Equation(EQUATIONS["batch" if reactor == "batch" else "differential"],

@@ -156,7 +156,7 @@ def eta_first_order(phi: Array, geometry: str) -> Array:
     """First-order isothermal effectiveness factor in the Aris normalisation (L = Vp/Sp).
 
     slab: tanh(phi)/phi; infinite cylinder: I1(2 phi)/(phi I0(2 phi)); sphere:
-    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957; REFERENCES.md section 1). Small
+    (1/phi)[1/tanh(3 phi) - 1/(3 phi)] (Thiele 1939; Aris 1957). Small
     moduli use the series 1 - c phi^2 (+ next term), c = 1/3, 1/2, 3/5, where the closed forms
     lose digits; the cylinder uses exponentially scaled Bessel functions.
     """
@@ -369,7 +369,8 @@ def residuals_figure(frame: pd.DataFrame, *, regimes: Mapping[str, str], unit: s
                         alpha=0.8)
         ax.set_xlabel(label)
     axes[0].set_ylabel(axis_label("residual", unit))
-    _regime_legend(axes[-1], present, loc="upper right", fontsize=7)
+    # outside the axes, so the legend never covers a residual
+    _regime_legend(axes[-1], present, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7)
     return fig
 
 
@@ -404,7 +405,7 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
     Tg = np.linspace(lo, hi, 120)
     x = -(1.0 / Tg - 1.0 / reference_temperature) / R_GAS
     k = k_ref * np.exp(activation_energy * x)
-    fig = _new_figure(4.6, 3.6)
+    fig = _new_figure(6.4, 3.6)
     ax = fig.add_subplot()
     if covariance is not None and np.all(np.isfinite(covariance)):
         c = np.asarray(covariance, dtype=float)
@@ -420,13 +421,15 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
         if pts:
             present.append(reg)
             a = np.array(pts)
-            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker=_REGIME_MARKERS[reg], ms=4,
-                    color=REGIME_COLOURS[reg], alpha=0.85, label=f"run ({reg})")
+            # the runs on top (zorder), white-edged so a cross beneath cannot hide them
+            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker=_REGIME_MARKERS[reg], ms=5,
+                    color=REGIME_COLOURS[reg], mec="white", mew=0.6, zorder=4,
+                    label=f"run ({reg})")
     if apparent:
         a = np.array([p for p in apparent if p[1] > 0], dtype=float).reshape(-1, 2)
         if a.size:
-            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker="X", ms=6.5, color=INK,
-                    label=apparent_label)
+            ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker="+", ms=9, mew=1.3, color=INK,
+                    zorder=3, label=apparent_label)
     ax.set_yscale("log")
     shown = [float(k.min()), float(k.max())] + [p[2] for p in per_run if p[2] > 0] + [
         p[1] for p in apparent if p[1] > 0]
@@ -436,7 +439,7 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
     top = ax.secondary_xaxis("top", functions=(lambda v: 1e3 / np.maximum(v, 1e-9) - 273.15,
                                                lambda v: 1e3 / (np.asarray(v) + 273.15)))
     top.set_xlabel(axis_label("temperature", "degC").replace("degC", "°C"))
-    ax.legend(loc="best", fontsize=7)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7)  # off the data
     return fig
 
 

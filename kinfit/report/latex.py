@@ -10,6 +10,8 @@ import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from kinfit.estimate.convergence import supported_digits
+
 __all__ = ["PARAMETER_SYMBOLS", "latex_escape", "latex_unit", "latex_number",
            "parameters_table"]
 
@@ -145,7 +147,7 @@ def parameters_table(parameters: Mapping[str, Mapping[str, Any]], *,
     parameters : mapping
         results.json ``parameters``.
     posterior : mapping, optional
-        posterior.json ``parameters`` (median, q05, q95).
+        posterior.json ``parameters`` (median, q05, q95 and their ``mcse``).
     caption, label : str
     sig : int
         Significant digits of the estimates.
@@ -185,8 +187,15 @@ def parameters_table(parameters: Mapping[str, Mapping[str, Any]], *,
         if posterior:
             q = posterior.get(name) or {}
             if q.get("median") is not None:
-                cells += [latex_number(q.get("median"), sig, exponent=e),
-                          _interval([q.get("q05"), q.get("q95")], e, sig)]
+                # to the digits the Monte Carlo standard error supports (``sig`` without one)
+                se = q.get("mcse") or {}
+
+                def mc(key: str, q: Mapping[str, Any] = q, se: Mapping[str, Any] = se) -> int:
+                    return supported_digits(q.get(key), se.get(key)) or sig
+
+                cells += [latex_number(q.get("median"), mc("median"), exponent=e),
+                          f"[{_bound(q.get('q05'), e, mc('q05'))}, "
+                          f"{_bound(q.get('q95'), e, mc('q95'))}]"]
             else:
                 cells += ["--", "--"]
         lines.append("    " + " & ".join(cells) + " \\\\")

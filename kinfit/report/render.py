@@ -57,6 +57,8 @@ def to_markdown(report: Report) -> str:
                               else b.text)
             elif kind == "items":
                 lines += [f"- {item}" for item in b.items]
+            elif kind == "details":
+                lines += [f"*{b.summary}:*", ""] + [f"- {item}" for item in b.items]
             elif kind == "facts":
                 lines += [f"- **{k}:** {v}" for k, v in b.pairs]
             elif kind == "heading":

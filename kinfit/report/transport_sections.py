@@ -7,6 +7,8 @@ exist; every optional field is read with a default.
 
 from __future__ import annotations
 
+import math
+import re
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -18,6 +20,7 @@ from kinfit.report import figures as fg
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
+    Details,
     Equation,
     Facts,
     Heading,
@@ -25,18 +28,30 @@ from kinfit.report.content import (
     Section,
     Table,
     Text,
-    factor_text,
     fmt,
     fmt_interval,
+    fmt_interval_mc,
+    fmt_mc,
     fmt_p,
     get_path,
 )
 from kinfit.report.equations import EQUATIONS
+from kinfit.report.matrix import SetCell, set_matrix
 
 if TYPE_CHECKING:
     from kinfit.report.builder import ReportBuilder
 
 __all__ = ["transport_section", "posterior_section"]
+
+
+#: the per-run criteria's limits in words (the diagnosis also records the inputs they are
+#: derived from, such as the Carberry limit times |n|; those stay in diagnosis.json)
+_THRESHOLD_WORDS = {
+    "carberry": "Carberry number (film), at most",
+    "weisz_prater": "Weisz–Prater number Ψ_L (pores), at most",
+    "mears": "Mears number (film), at most",
+    "effectiveness_factor": "effectiveness factor η, at least",
+}
 
 
 def _thresholds(rb: ReportBuilder) -> tuple[dict[str, float], dict[str, str]]:
@@ -74,9 +89,10 @@ def transport_section(rb: ReportBuilder) -> Section:
         rows.append(row)
         tones.append(tone)
     blocks: list[Any] = [
-        Text("Criteria at each run's initial conditions, from the fitted model. The "
-             "regime names the resistance whose share of the total exceeds one half "
-             "(\"mixed\" when none does)."),
+        Text("Criteria at each run's initial conditions, from the fitted model. A run is "
+             "\"kinetic\" only when the reaction share is at least 0.95 (its observed rate "
+             "within 5 % of the intrinsic rate at bulk conditions); \"film\" or \"pore\" "
+             "when that resistance's share exceeds one half; \"mixed\" otherwise."),
         rb.table("Per-run transport criteria and regime; green meets the threshold, red "
                    "fails it.", header, rows, tones=tones,
                    numeric=(False, False) + (True,) * 8 + (False,), csv="runs.csv"),
@@ -85,7 +101,10 @@ def transport_section(rb: ReportBuilder) -> Section:
         Equation(EQUATIONS["mears"], "Mears number with the particle density"),
         Equation(EQUATIONS["shares"], "resistances in series per kg: film, reaction, pore"),
     ]
-    trows = [(k, fmt(v, 4), sources.get(k, "")) for k, v in limits.items()]
+    trows = []
+    for k, words in _THRESHOLD_WORDS.items():  # one row per criterion, in words
+        if isinstance(limits.get(k), int | float):
+            trows.append((words, fmt(limits[k], 4), sources.get(k, "")))
     blocks.append(rb.table("Thresholds in use and their sources.",
                              ("criterion", "limit", "source"), trows,
                              numeric=(False, True, False)))
@@ -138,17 +157,40 @@ def _order(rb: ReportBuilder) -> float:
     return float(np.median(orders)) if orders else 1.0
 
 def _regime_probability(rb: ReportBuilder, post_runs: Mapping[str, Any]) -> Table:
+    # one source for a number the console prints too: the diagnosis' probabilities (what
+    # 'kinfit diagnose' shows) when it has them, else the sampler's summary
+    diag = rb.inp.diagnosis or {}
+    diag_runs = {rid: r for rid, r in (diag.get("runs") or {}).items()
+                 if isinstance(r, Mapping) and r.get("regime_probability")}
+    n_draws = get_path(diag, "model", "n_draws")
+    if diag_runs:
+        post_runs = diag_runs
+        where = (f"diagnosis.json, {n_draws} posterior draws" if n_draws
+                 else "diagnosis.json")
+    else:
+        where = "posterior.json"
     rows: list[Sequence[str]] = []
     tones: list[list[str | None]] = []
     for rid, pr in post_runs.items():
         prob = pr.get("regime_probability") or {}
         best = max(prob, key=lambda k: prob.get(k) or 0.0) if prob else None
-        rows.append([rid] + [fmt(prob.get(g), 3) for g in REGIMES])
+        rows.append([rid] + ["–" if prob.get(g) is None else f"{float(prob[g]):.2f}"
+                             for g in REGIMES])
         tone: list[str | None] = [None]
         tones.append(tone + [g if g == best else None for g in REGIMES])
     return rb.table("Posterior probability of each regime per run (share of the "
-                      "evaluated draws).", ["run", *REGIMES], rows, tones=tones,
+                      f"evaluated draws; from {where}).", ["run", *REGIMES], rows, tones=tones,
                       numeric=(False,) + (True,) * len(REGIMES))
+
+def _apparent_conditions(rb: ReportBuilder, cond: Any) -> str:
+    """The stirrer speed and particle size the apparent constants were taken at, in words
+    (``"300 rpm, 10 µm"``); empty when the diagnosis does not say."""
+    if not isinstance(cond, Mapping):
+        return ""
+    parts = [rb.factor_text(f, cond[f]) for f in ("stirrer_speed", "particle_diameter")
+             if isinstance(cond.get(f), int | float)]
+    return ", ".join(parts)
+
 
 def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
     params, m = rb.res.parameters, rb.res.model
@@ -181,18 +223,23 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
                 if isinstance(p, Mapping) and isinstance(p.get("temperature"), int | float)
                 and isinstance(p.get("k_apparent"), int | float)]
     temps = [r.temperature for r in rb.inp.study.runs]
+    where = _apparent_conditions(rb, fals.get("conditions"))
+    app_label = f"apparent at {where}" if where else "apparent (diagnosis)"
     b = rb.figure("arrhenius", "Arrhenius plot: intrinsic k(T) from k_ref and E_a (line, "
                     "95 % band by the delta method); each run's effective constant "
                     "r_obs/(C₀/C_ref)^n at its initial conditions (markers by regime: below "
                     "the line where transport slows the run)" + ("; apparent constants "
                                                                 "per temperature from "
-                                                                "the diagnosis (crosses)"
+                                                                "the diagnosis (plus signs"
+                                                                + (f", taken at {where}"
+                                                                   if where else "") + ")"
                                                                 if apparent else "") + ".",
                     lambda: fg.arrhenius_figure(
                         k_ref=float(k_ref["estimate"]), activation_energy=float(
                             ea["estimate"]), reference_temperature=float(t_ref),
                         temperatures=temps, k_unit=str(k_ref.get("unit", "")),
-                        covariance=cov, per_run=per_run, apparent=apparent),
+                        covariance=cov, per_run=per_run, apparent=apparent,
+                        apparent_label=app_label),
                     "Arrhenius plot")
     if b:
         blocks.append(b)
@@ -200,7 +247,8 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
         facts = []
         for key, label, scale, unit in (
             ("intrinsic_activation_energy", "intrinsic E_a", 1e-3, "kJ/mol"),
-            ("apparent_activation_energy", "apparent E_a", 1e-3, "kJ/mol"),
+            ("apparent_activation_energy", "apparent E_a" + (f" at {where}" if where else ""),
+             1e-3, "kJ/mol"),
             ("intrinsic_order", "intrinsic order", 1.0, ""),
             ("apparent_order", "apparent order", 1.0, ""),
         ):
@@ -210,7 +258,7 @@ def _kinetics_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
         ci = fals.get("apparent_activation_energy_ci95")
         if isinstance(ci, list | tuple) and len(ci) == 2 and all(
                 isinstance(x, int | float) for x in ci):
-            facts.append(("apparent E_a, 95 %",
+            facts.append(("apparent E_a" + (f" at {where}" if where else "") + ", 95 %",
                           fmt_interval([ci[0] * 1e-3, ci[1] * 1e-3]) + " kJ/mol"))
         if facts:
             blocks.append(Facts(tuple(facts)))
@@ -224,43 +272,91 @@ def _diagnosis_blocks(rb: ReportBuilder, diag: Mapping[str, Any]) -> list[Any]:
     if tests or diag.get("not_possible"):
         blocks.append(Heading("What the data show without a model"))
     if tests:
-        rows: list[Sequence[str]] = []
-        tones: list[list[str | None]] = []
-        for t in tests:
-            vals = t.get("values") or []
-            factor = str(t.get("factor", ""))
-            vtext = " vs ".join(factor_text(factor, v) if factor in FACTOR_LABEL and
-                                isinstance(v, int | float) else str(v) for v in vals)
-            rows.append((factor, ", ".join(map(str, t.get("runs") or [])), vtext,
-                         str(t.get("test", "")), fmt(t.get("statistic"), 4),
-                         str(t.get("df", "")), fmt_p(t.get("p_value")),
-                         fmt(t.get("different")) if t.get("different") is not None else "–",
-                         str(t.get("conclusion", ""))))
-            diff = t.get("different")
-            tone: list[str | None] = [None] * 7
-            tone += [None if diff is None else ("fail" if diff else "ok"), None]
-            tones.append(tone)
-        blocks.append(rb.table("Model-free tests: runs that differ in one factor only, "
-                                 "compared with a test that accounts for noise.",
-                                 ("factor", "runs", "levels", "test", "statistic", "df",
-                                  "p", "different", "conclusion"), rows, tones=tones,
-                                 numeric=(False,) * 4 + (True,) * 3 + (False, False)))
+        blocks += _model_free_blocks(rb, tests)
     impossible = [f"{d.get('factor', '')}: {d.get('message', '')}"
                   for d in diag.get("not_possible") or [] if isinstance(d, Mapping)]
     if impossible:
         blocks.append(Items(tuple(impossible), "note"))
     nxt = [d for d in diag.get("next_runs") or [] if isinstance(d, Mapping)]
     if nxt:
-        next_rows = [(fmt(d.get("temperature"), 5), fmt((d.get("stirrer_speed") or 0) * 60, 4)
+        next_rows = [(rb.temperature(d.get("temperature")).split(" ")[0],
+                      fmt((d.get("stirrer_speed") or 0) * 60, 4)
                  if isinstance(d.get("stirrer_speed"), int | float) else "–",
                  fmt((d.get("particle_diameter") or 0) * 1e6, 4)
                  if isinstance(d.get("particle_diameter"), int | float) else "–",
                  str(d.get("note", ""))) for d in nxt]
         blocks.append(Heading("Runs that would make the data intrinsic"))
         blocks.append(rb.table("Suggested conditions (from the diagnosis).",
-                                 ("T [K]", "N [rpm]", "d_p [µm]", "note"), next_rows,
+                                 ("T [°C]" if rb.celsius else "T [K]", "N [rpm]", "d_p [µm]",
+                                  "note"), next_rows,
                                  numeric=(True, True, True, False)))
     return blocks
+
+def _fixed(value: Any, decimals: int) -> str:
+    """A number with a fixed count of decimals (R-hat); ``–`` when missing."""
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        return "–"
+    return f"{f:.{decimals}f}" if math.isfinite(f) else "–"
+
+
+def _p_text(p: Any) -> str:
+    """``p = 0.085`` or ``p < 1×10⁻⁶``."""
+    text = fmt_p(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+def _model_free_blocks(rb: ReportBuilder, tests: Sequence[Mapping[str, Any]]) -> list[Any]:
+    """The model-free tests as one matrix (factor and held conditions by temperature; each
+    cell the p-value and verdict), the method stated once, and what lies behind each cell
+    (runs, statistic, conclusion) folded beneath."""
+    cells = []
+    for t in tests:
+        factor = str(t.get("factor", ""))
+        vals = tuple(v for v in t.get("values") or [] if isinstance(v, int | float))
+        diff = t.get("different")
+        verdict = "–" if diff is None else ("differs" if diff else "no difference")
+        df = t.get("df")
+        dft = (f" ({', '.join(map(str, df))} df)" if isinstance(df, Sequence)
+               and not isinstance(df, str) else "")
+        spline = re.search(r"\d+ interior knots?", str(t.get("test", "")))
+        measure = str(t.get("measure", "")).strip()
+        note = (" vs ".join(map(str, t.get("runs") or [])) + f": statistic "
+                f"{fmt(t.get('statistic'), 3)}{dft}, {_p_text(t.get('p_value'))}"
+                + (f", {spline.group(0)}" if spline else "")
+                + (f"; {measure}" if measure else "") + ". " + str(t.get("conclusion", "")))
+        cells.append(SetCell(factor, vals, {k: v for k, v in (t.get("fixed") or {}).items()
+                                            if isinstance(v, int | float)},
+                             f"{_p_text(t.get('p_value'))}, {verdict}",
+                             None if diff is None else ("fail" if diff else "ok"), note))
+    m = set_matrix([c for c in cells if c.factor in FACTOR_LABEL], list(rb.varied),
+                   rb.factor_text)
+    blocks: list[Any] = []
+    methods: dict[str, list[str]] = {}
+    for t in tests:
+        # the per-set details (knots, measured span) go to the cell's note
+        key = re.sub(r"\d+ interior knots?", "interior knots chosen per set",
+                     str(t.get("test", "")).strip())
+        label = FACTOR_LABEL.get(str(t.get("factor")), (str(t.get("factor")),))[0]
+        if key and label not in methods.setdefault(key, []):
+            methods[key].append(label)
+    alpha = (rb.inp.diagnosis or {}).get("alpha")
+    level = f" at the {fmt(alpha, 2)} level" if isinstance(alpha, int | float) else ""
+    for key, labels in methods.items():
+        who = "" if len(methods) == 1 else f" ({', '.join(labels)})"
+        blocks.append(Text(f"Method{who}: {key}. \"differs\" means the runs of a set do not "
+                           f"follow one curve{level}; green: no difference, red: differs."))
+    blocks.append(rb.table("Model-free tests: each cell is one set of runs that differ in "
+                           "the factor of its row only, held at the conditions of its row "
+                           "and column; p-value and verdict.", m.header, m.rows,
+                           tones=m.tones))
+    if m.notes:
+        blocks.append(Details("Runs, statistic and conclusion behind each cell",
+                              tuple(f"{r} at {c}: {n}" if c not in ("", "result")
+                                    else f"{r}: {n}" for r, c, n in m.notes)))
+    return blocks
+
 
 def posterior_section(rb: ReportBuilder) -> Section | None:
     """The posterior: sampler settings, convergence, summary, corner plot and traces."""
@@ -280,22 +376,38 @@ def posterior_section(rb: ReportBuilder) -> Section | None:
         reasons = "; ".join(map(str, conv.get("reasons") or []))
         blocks.append(Text(("The chain converged" if ok else "The chain did NOT converge")
                            + (f": {reasons}" if reasons else "") +
-                           (f" (acceptance fraction {fmt(conv.get('acceptance_fraction'), 3)})"
+                           (f" (acceptance fraction {fmt(conv.get('acceptance_fraction'), 2)})"
                             if conv.get("acceptance_fraction") is not None else "") + ".",
                            "ok" if ok else "warning"))
         tau = conv.get("tau") or {}
         if tau:
-            blocks.append(Facts(tuple((f"τ {k}", fmt(v, 3)) for k, v in tau.items())))
+            blocks.append(Facts(tuple((f"τ {k}", fmt(v, 2)) for k, v in tau.items())))
     summary = (post or {}).get("parameters") or {}
     if summary:
-        rows = [(n, fg.pretty_unit(rb.units.get(n, "")), fmt(q.get("median")),
-                 fmt_interval([q.get("q05"), q.get("q95")]), fmt_interval(q.get("hdi94")),
-                 fmt(q.get("rhat"), 4), fmt(q.get("ess"), 3)) for n, q in summary.items()
-                if isinstance(q, Mapping)]
-        blocks.append(rb.table("Posterior summary: median, central 90 % interval, 94 % "
+        # printed to the digits the Monte Carlo standard error supports (full precision stays
+        # in posterior.json); R-hat to 3 decimals, ESS to 2 digits: both are estimates that
+        # move from run to run by more than the digits dropped
+        rows = []
+        for n, q in summary.items():
+            if not isinstance(q, Mapping):
+                continue
+            se = q.get("mcse") or {}
+            u = rb.units.get(n, "")
+
+            def sh(v: Any, u: Any = u) -> Any:
+                return rb.shown(v, u)[0]
+
+            rows.append((n, fg.pretty_unit(rb.shown(None, u)[1]),
+                         fmt_mc(sh(q.get("median")), sh(se.get("median"))),
+                         fmt_interval_mc(sh([q.get("q05"), q.get("q95")]),
+                                         sh([se.get("q05"), se.get("q95")])),
+                         fmt_interval_mc(sh(q.get("hdi90")), sh(se.get("hdi90"))),
+                         _fixed(q.get("rhat"), 3), fmt(q.get("ess"), 2)))
+        blocks.append(rb.table("Posterior summary: median, central 90 % interval, 90 % "
                                  "highest-density interval, R-hat and effective sample "
-                                 "size.", ("quantity", "unit", "median", "5–95 %",
-                                           "HDI 94 %", "R-hat", "ESS"), rows,
+                                 "size, each to the digits its Monte Carlo standard error "
+                                 "supports.", ("quantity", "unit", "median", "5–95 %",
+                                           "HDI 90 %", "R-hat", "ESS"), rows,
                                  numeric=(False, False) + (True,) * 5))
     if draws is not None:
         names = [c for c in draws.columns if c not in ("step", "walker", "log_prob",

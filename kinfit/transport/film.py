@@ -184,7 +184,7 @@ def sherwood_sano(
     r"""Sano, Yamaguchi & Adachi (1974): :math:`Sh\,\phi_c = 2 + 0.4 (\varepsilon d_p^4/\nu^3)^{1/4} Sc^{1/3}`.
 
     ``shape_factor`` is Carman's phi_c (1 for spheres). J. Chem. Eng. Japan 7, 255-261
-    (form from memory, see REFERENCES.md section 4).
+    (form from memory).
     """
     dp = np.asarray(dp, dtype=float)
     group = (np.asarray(eps, dtype=float) * dp**4 / np.asarray(nu, dtype=float) ** 3) ** 0.25
@@ -194,7 +194,7 @@ def sherwood_sano(
 def sherwood_armenante_kirwan(Re_K: ArrayLike, Sc: ArrayLike) -> FloatArray:
     """Armenante & Kirwan (1989), microparticles: Sh = 2 + 0.52 Re_K^0.52 Sc^(1/3).
 
-    Chem. Eng. Sci. 44, 2781-2796 (form from memory, see REFERENCES.md section 4).
+    Chem. Eng. Sci. 44, 2781-2796 (form from memory).
     """
     return 2.0 + 0.52 * np.asarray(Re_K, dtype=float) ** 0.52 * np.cbrt(Sc)
 
@@ -204,7 +204,7 @@ def sherwood_levins_glastonbury(
 ) -> FloatArray:
     """Levins & Glastonbury (1972): Sh = 2 + 0.47 Re_K^0.62 Sc^0.36 (D/T)^0.17.
 
-    Trans. IChemE 50, 132-146 (form from memory, see REFERENCES.md section 4).
+    Trans. IChemE 50, 132-146 (form from memory).
     """
     Re_K = np.asarray(Re_K, dtype=float)
     return 2.0 + 0.47 * Re_K**0.62 * np.asarray(Sc, dtype=float) ** 0.36 * (
@@ -331,7 +331,7 @@ class AgitationFilm(FilmModel):
     -----
     Parameters: ``kc_ref`` [m/s] > 0; ``agitation_exponent`` a [-] in [0, 3];
     ``size_exponent`` b [-] in [-1, 3]. Sherwood correlations for slurries give a of about
-    0.3-0.75 and b between 0 (large Re) and 1 (Sh -> 2) (REFERENCES.md section 4); the accepted
+    0.3-0.75 and b between 0 (large Re) and 1 (Sh -> 2) (Ranz & Marshall 1952; Sano, Yamaguchi & Adachi 1974; common practice); the accepted
     ranges are wider so that a fit can explore.
 
     Examples

@@ -19,8 +19,7 @@ from numpy.typing import NDArray
 
 from kinfit.errors import SolverError
 
-__all__ = ["ObservedRate", "PelletRate", "solve_surface", "observed_rate", "observed_rate_value",
-           "resistance_shares"]
+__all__ = ["ObservedRate", "PelletRate", "solve_surface", "observed_rate", "observed_rate_value"]
 
 Array = NDArray[np.float64]
 
@@ -367,23 +366,3 @@ def observed_rate_value(Cb: Array, pellet_rate: PelletRate, conductance: Array) 
     _, rate = solve_surface(Cb, conductance, g, C_eq=pellet_rate.C_eq, return_rate=True)
     return rate
 
-
-def resistance_shares(obs: ObservedRate, conductance: Array, C_eq: Array | float = 0.0):
-    """Shares of film, pore and reaction in the overall resistance (DESIGN contract).
-
-    The rate is linearised at the surface, k1 = r(Cs)/(Cs - C_eq); resistances per kg are
-    film 1/(kc a_m), reaction 1/k1, pore (1/eta - 1)/k1.
-
-    Returns
-    -------
-    film, pore, reaction : ndarray
-        Fractions summing to 1.
-    """
-    Cs = obs.surface_concentration
-    with np.errstate(divide="ignore", invalid="ignore"):
-        k1 = obs.intrinsic_rate / np.maximum(Cs - C_eq, 1e-300)
-        film = np.where(np.isfinite(conductance), 1.0 / conductance, 0.0)
-        react = 1.0 / k1
-        pore = (1.0 / obs.effectiveness - 1.0) / k1
-    total = film + react + pore
-    return film / total, pore / total, react / total

@@ -76,8 +76,11 @@ def main() -> None:
         y[first] = c0 + rng.normal(0.0, SIGMA, first.size)
         rep = dataclasses.replace(problem, y=np.maximum(y, 0.0))
         est = fit_problem(rep, warn=False)
-        if not est.converged:
-            print(f"replicate {i}: fit did not converge ({est.message}); skipped")
+        if not est.converged:  # no interval from a failed fit: a miss for every parameter
+            print(f"replicate {i}: fit did not converge ({est.message}); counted as a miss")
+            hits = np.vstack([hits, np.zeros(len(names), dtype=bool)])
+            if i < args.posterior:
+                post_hits = np.vstack([post_hits, np.zeros(len(names), dtype=bool)])
             continue
         hits = np.vstack([hits, np.abs(est.x - x_true) <= tq * est.stderr])
         if i < args.posterior:
@@ -85,7 +88,9 @@ def main() -> None:
                 warnings.simplefilter("ignore", ConvergenceWarning)
                 post = sample_problem(rep, start=est.x, seed=i, progress=False)
             q = np.quantile(post.draws[:, : len(names)], [0.05, 0.95], axis=0)
-            post_hits = np.vstack([post_hits, (q[0] <= x_true) & (x_true <= q[1])])
+            # a posterior that did not converge counts as a miss
+            post_hits = np.vstack([post_hits, (q[0] <= x_true) & (x_true <= q[1])
+                                   & bool(post.converged)])
             print(f"replicate {i}: posterior {'converged' if post.converged else 'NOT converged'}"
                   f" after {post.chain_shape[0]} steps", flush=True)
     seconds = time.perf_counter() - t0
