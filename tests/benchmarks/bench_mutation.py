@@ -73,6 +73,7 @@ PHYSICS: dict[str, tuple[str, ...]] = {
     "kinfit.kinetics": ("tests/test_kinetics.py", "tests/test_expressions.py"),
     "kinfit.reactors": ("tests/test_reactors.py",),
     "kinfit.calculator": ("tests/test_calculator.py",),
+    "kinfit.resistances": ("tests/test_criteria.py", "tests/test_calculator.py"),
 }
 
 ESTIMATE: dict[str, tuple[str, ...]] = {
