@@ -46,7 +46,7 @@ def _sample(fit_dir: Path, out: Path, *extra: str) -> int:
 @pytest.fixture(scope="module")
 def short_run(fitted, tmp_path_factory):
     out = tmp_path_factory.mktemp("post")
-    code = _sample(fitted, out, "--steps", "300", "--seed", "3", "--walkers", "32")
+    code = _sample(fitted, out, "--steps", "150", "--seed", "3", "--walkers", "32")
     return code, out
 
 
@@ -65,9 +65,9 @@ def test_posterior_json_holds_the_results_contract(short_run, fitted):
         assert entry["q05"] <= entry["median"] <= entry["q95"], name
         assert lo <= entry["median"] <= hi, name
     sampler = post["sampler"]
-    assert sampler["walkers"] == 32 and sampler["steps"] == 300 and sampler["seed"] == 3
-    assert 0 <= sampler["burn_in"] <= 150 and sampler["moves"] == "de"
-    assert post["convergence"]["converged"] is False  # 300 steps cannot meet the rule
+    assert sampler["walkers"] == 32 and sampler["steps"] == 150 and sampler["seed"] == 3
+    assert 0 <= sampler["burn_in"] <= 75 and sampler["moves"] == "de-laplace"
+    assert post["convergence"]["converged"] is False  # 150 steps cannot meet the rule
     assert post["convergence"]["reasons"]
     assert post["manifest"]["inputs"]
 
@@ -93,7 +93,7 @@ def test_per_run_derived_quantities_and_regime_probabilities(short_run):
 def test_draws_and_bands_files(short_run):
     _, out = short_run
     post = json.loads((out / "posterior.json").read_text())
-    draws = pd.read_csv(out / "posterior_draws.csv")
+    draws = pd.read_csv(out / "posterior_draws.csv.gz")
     kept = (post["sampler"]["steps"] - post["sampler"]["burn_in"]) * post["sampler"]["walkers"]
     assert len(draws) == kept
     assert set(post["parameters"]) <= set(draws.columns)
@@ -111,7 +111,7 @@ def test_netcdf_file_holds_the_draws(short_run):
     import xarray as xr
 
     _, out = short_run
-    draws = pd.read_csv(out / "posterior_draws.csv").sort_values(["walker", "step"])
+    draws = pd.read_csv(out / "posterior_draws.csv.gz").sort_values(["walker", "step"])
     with xr.open_datatree(out / "posterior.nc", engine="h5netcdf") as tree:
         names = list(tree["posterior"].data_vars)
         assert set(json.loads((out / "posterior.json").read_text())["parameters"]) <= set(names)
@@ -140,8 +140,8 @@ def test_resume_gives_the_chain_asked_for(fitted, tmp_path):
     assert resumed["sampler"]["steps"] == 300 and resumed["sampler"]["resumed_from"] == 150
     straight = tmp_path / "straight"
     assert _sample(fitted, straight, "--steps", "300", "--seed", "9") == 0
-    a = pd.read_csv(first / "posterior_draws.csv")
-    b = pd.read_csv(straight / "posterior_draws.csv")
+    a = pd.read_csv(first / "posterior_draws.csv.gz")
+    b = pd.read_csv(straight / "posterior_draws.csv.gz")
     pd.testing.assert_frame_equal(a, b)
 
 
@@ -221,8 +221,8 @@ def test_default_seed_makes_a_standalone_sample_reproducible(fitted, tmp_path):
     assert "10 000-step cap" in readme
     for name in ("a", "b"):
         assert _sample(fitted, tmp_path / name, "--steps", "60", "--walkers", "16") == 0
-    a = pd.read_csv(tmp_path / "a" / "posterior_draws.csv")
-    b = pd.read_csv(tmp_path / "b" / "posterior_draws.csv")
+    a = pd.read_csv(tmp_path / "a" / "posterior_draws.csv.gz")
+    b = pd.read_csv(tmp_path / "b" / "posterior_draws.csv.gz")
     pd.testing.assert_frame_equal(a, b)
     post = json.loads((tmp_path / "a" / "posterior.json").read_text())
     assert post["sampler"]["seed"] == DEFAULT_SEED

@@ -244,10 +244,13 @@ def test_stretch_move_also_matches_the_analytic_posterior():
     _mc_close(post, beta_hat, 0.1 * np.sqrt(np.diag(np.linalg.inv(X.T @ X))))
 
 
-def test_de_move_reproduces_a_correlated_eight_dimensional_gaussian():
+@pytest.mark.parametrize("moves", ["de", "de-laplace"])
+def test_moves_reproduce_a_correlated_eight_dimensional_gaussian(moves):
     # analytic target: y = I beta + e with a correlated design gives a Gaussian posterior of
     # known covariance (BDA3 ch. 14); 8 dimensions as in the demo campaign. Guards against a
-    # move that narrows the posterior (emcee's DESnookerMove gave sds of 0.89, see MOVES).
+    # move that narrows the posterior (emcee's DESnookerMove gave sds of 0.89, see MOVES), for
+    # DE alone and for DE mixed with the independence move (whose Laplace proposal is exact
+    # in shape here, so a wrong proposal-density ratio would show at once).
     rng = np.random.default_rng(3)
     n, p = 60, 8
     A = rng.standard_normal((n, p)) @ np.linalg.cholesky(0.6 * np.eye(p) + 0.4)
@@ -258,9 +261,10 @@ def test_de_move_reproduces_a_correlated_eight_dimensional_gaussian():
     prob = Problem(lambda B: B @ A.T, y, space, np.zeros(p))
     beta_hat = np.linalg.lstsq(A, y, rcond=None)[0]
     post = sample_problem(prob, start=beta_hat, scale_start=[0.05], sample_scale=False,
-                          seed=5, progress=False)
+                          seed=5, progress=False, moves=moves)
     assert post.converged, post.verdict
-    assert post.settings.moves == "de"
+    assert post.settings.moves == moves
+    assert ("independence move" in post.settings.move_note) == (moves == "de-laplace")
     cov = 0.05**2 * np.linalg.inv(A.T @ A)
     _mc_close(post, beta_hat, np.sqrt(np.diag(cov)))
     ref = cov / np.sqrt(np.outer(np.diag(cov), np.diag(cov)))
@@ -484,7 +488,7 @@ def test_shorter_run_extended_by_resume(tmp_path, reference_chain):
     other = Problem(_decay, _decay_problem().y * 1.01, DECAY_SPACE, [0.1, 1.0])
     with pytest.raises(StudyError, match="problem: checkpoint"):
         sample_problem(other, start=[0.1, 1.0], checkpoint=ckpt, resume=True, **FIXED_LENGTH)
-    with pytest.raises(StudyError, match='moves: checkpoint "de", now "stretch"'):
+    with pytest.raises(StudyError, match='moves: checkpoint "de-laplace", now "stretch"'):
         sample_problem(_decay_problem(), start=[0.1, 1.0], checkpoint=ckpt, resume=True,
                        moves="stretch", **FIXED_LENGTH)
 
@@ -556,7 +560,7 @@ def test_option_and_prior_errors():
         sample_problem(prob, start=[0.1, 1.0], resume=True, progress=False)
     with pytest.raises(StudyError, match=r"scale_start names \['s'\].*\['sigma'\]"):
         sample_problem(prob, start=[0.1, 1.0], scale_start={"s": 1.0}, progress=False)
-    with pytest.raises(StudyError, match=r"moves 'gibbs' is not recognised.*\['de', 'stretch'\]"):
+    with pytest.raises(StudyError, match=r"moves 'gibbs' is not recognised.*\['de-laplace', 'de', 'stretch'\]"):
         sample_problem(prob, start=[0.1, 1.0], moves="gibbs", progress=False)
 
 

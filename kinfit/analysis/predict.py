@@ -35,6 +35,7 @@ from numpy.typing import NDArray
 
 from kinfit.analysis.suspension import suspension_check
 from kinfit.core.files import (
+    draws_file,
     manifest,
     to_plain,
     write_frame_atomic,
@@ -417,7 +418,8 @@ def predict_conditions(study: Study, fit: FitResult, conditions: Sequence[Condit
     rng = np.random.default_rng(seed)
     draws, source = None, "covariance"
     if fit_dir is not None:
-        draws = posterior_draws(fitted, Path(fit_dir) / "posterior_draws.csv", n_draws, rng)
+        found = draws_file(fit_dir)
+        draws = None if found is None else posterior_draws(fitted, found, n_draws, rng)
         source = "posterior" if draws is not None else "covariance"
     if draws is None:
         draws = covariance_draws(fitted, n_draws, rng)

@@ -14,6 +14,8 @@ from kinfit.cli.common import (
     adequacy_exit,
     print_adequacy,
 )
+from kinfit.cli.options import add_parallel_arguments
+from kinfit.core.executors import available_workers, make_executor
 from kinfit.core.files import prepare_out_dir
 from kinfit.fitting.fit import FitOptions, fit
 from kinfit.fitting.posterior import DEFAULT_SEED, SampleOptions, sample_study
@@ -39,8 +41,15 @@ def run(args: argparse.Namespace) -> int:
     print(campaign_summary(study))
     out = prepare_out_dir(args.out)
     step("fitting all runs jointly (least squares, profile-likelihood intervals)")
-    result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed, profile=True,
-                                   progress=not args.quiet), argv=sys.argv)
+
+    # the profile sides (and multistart refits) go to a local pool over the available cores
+    # unless told otherwise (--workers 1: in this process)
+    workers = args.workers if args.workers is not None else min(available_workers(), 4)
+    with make_executor(workers=None if args.scheduler else workers,
+                       scheduler=args.scheduler) as executor:
+        result = fit(study, FitOptions(multistart=args.multistart, seed=args.seed,
+                                       profile=True, progress=not args.quiet,
+                                       executor=executor), argv=sys.argv)
     result.save(out)
     print(result.report())
     print_adequacy(result.fit.get("adequacy"))
@@ -49,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
         step(f"sampling the posterior ({args.steps} steps at most)")
         post, content = sample_study(study, result, out, SampleOptions(
             max_steps=args.steps, chunk=min(500, args.steps), seed=args.seed,
-            progress=not args.quiet), argv=sys.argv)
+            progress=not args.quiet, draws_csv=args.draws_csv), argv=sys.argv)
         print(post.report())
         print_adequacy(content.get("adequacy"))
         if post.interrupted:
@@ -82,6 +91,10 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--steps", type=int, default=10000,
                    help="posterior step cap; sampling stops earlier once converged (0: no "
                         "sampling; default 10000)")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the posterior draws as plain CSV (default: compressed CSV)")
+
+    add_parallel_arguments(p)
     p.add_argument("--quiet", action="store_true", help="no progress bars")
     p.add_argument("--require-adequate", action="store_true",
                    help="exit 1 when a model-adequacy test fails")

@@ -26,13 +26,15 @@ def run(args: argparse.Namespace) -> int:
     out = prepare_out_dir(args.out or fit_dir)
     options = SampleOptions(walkers=args.walkers, max_steps=args.steps, chunk=args.chunk,
                             tau_multiple=args.tau_multiple, seed=args.seed, resume=args.resume,
-                            progress=not args.quiet, moves=args.moves)
+                            progress=not args.quiet, moves=args.moves,
+                            draws_csv=args.draws_csv)
     try:
         post, content = sample_study(study, fit, out, options, argv=sys.argv)
     except StudyError as exc:
         raise StudyError(_option_words(str(exc))) from None
     print(post.report())
-    print(f"\nwrote {out / 'posterior.json'}, posterior_draws.csv, posterior_bands.csv")
+    draws = "posterior_draws.csv" if args.draws_csv else "posterior_draws.csv.gz"
+    print(f"\nwrote {out / 'posterior.json'}, {draws}, posterior_bands.csv")
     if post.interrupted:
         print("kinfit: sampling was interrupted; what was sampled is kept (use --resume)",
               file=sys.stderr)
@@ -59,10 +61,15 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--seed", type=int, default=DEFAULT_SEED,
                    help=f"seed (same seed, same chain; default {DEFAULT_SEED})")
     p.add_argument("--resume", action="store_true", help="continue from the checkpoint")
-    p.add_argument("--moves", choices=("de", "stretch"), default="de",
-                   help="proposal: differential-evolution move (default) or stretch move")
+    p.add_argument("--moves", choices=("de-laplace", "de", "stretch"), default="de-laplace",
+                   help="proposal: differential-evolution move mixed with an independence move "
+                        "from the fit's curvature (default), differential evolution alone, or "
+                        "the stretch move")
     p.add_argument("--require-converged", action="store_true",
                    help="exit 1 when the chain has not converged")
+    p.add_argument("--draws-csv", action="store_true",
+                   help="write the draws as plain posterior_draws.csv (default: compressed "
+                        "posterior_draws.csv.gz)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 

@@ -22,8 +22,21 @@ import numpy as np
 from kinfit.core.version import __version__
 from kinfit.errors import StudyError
 
-__all__ = ["file_sha256", "CAUTIONS", "cautions_markdown", "recorded_path", "recorded_command", "atomic_path", "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
-           "manifest", "to_plain", "prepare_out_dir"]
+__all__ = ["file_sha256", "CAUTIONS", "cautions_markdown", "recorded_path", "recorded_command", "atomic_path",
+           "write_text_atomic", "write_bytes_atomic", "write_json_atomic", "write_frame_atomic",
+           "manifest", "to_plain", "prepare_out_dir", "DRAWS_FILES", "draws_file"]
+
+#: The posterior draws table that ``kinfit sample`` writes into its folder: gzip-compressed by
+#: default, plain CSV on request (``--draws-csv``); readers take whichever is there.
+DRAWS_FILES = ("posterior_draws.csv.gz", "posterior_draws.csv")
+
+
+def draws_file(folder: str | Path) -> Path | None:
+    """The posterior draws table in ``folder`` (see :data:`DRAWS_FILES`), or None."""
+    for name in DRAWS_FILES:
+        if (Path(folder) / name).is_file():
+            return Path(folder) / name
+    return None
 
 _LIBRARIES = ("numpy", "scipy", "lmfit", "pandas", "emcee", "matplotlib", "pint", "arviz-base",
               "arviz-stats")
@@ -178,7 +191,13 @@ def write_json_atomic(path: str | Path, data: Mapping[str, Any]) -> Path:
 
 
 def write_frame_atomic(path: str | Path, frame) -> Path:
-    """Write a pandas DataFrame as CSV atomically."""
+    """Write a pandas DataFrame as CSV atomically; gzip-compressed (reproducibly: no time
+    stamp in the header) when the name ends in ``.gz``."""
+    if str(path).endswith(".gz"):
+        import gzip
+
+        text = frame.to_csv(index=False).encode("utf-8")
+        return write_bytes_atomic(path, gzip.compress(text, compresslevel=6, mtime=0))
     return write_text_atomic(path, frame.to_csv(index=False))
 
 

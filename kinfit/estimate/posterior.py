@@ -72,8 +72,11 @@ class SamplerSettings:
         Steps taken from a checkpoint (0 for a fresh run).
     stopped_by : {"converged", "autocorrelation", "max_steps", "interrupted"}
         Why sampling stopped.
-    moves : {"de", "stretch"}
-        Proposal moves of the ensemble sampler.
+    moves : {"de-laplace", "de", "stretch"}
+        Proposal moves asked of the ensemble sampler.
+    move_note : str
+        What the moves were in fact: the independence proposal's form, or why the sampler fell
+        back to DE alone (see :mod:`kinfit.estimate.moves`); empty for "de" and "stretch".
     """
 
     n_walkers: int
@@ -91,6 +94,7 @@ class SamplerSettings:
     resumed_from: int
     stopped_by: str
     moves: str = "stretch"
+    move_note: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         """Plain-type form; ``walkers``, ``steps``, ``burn_in``, ``seed`` are contract names."""
@@ -110,6 +114,7 @@ class SamplerSettings:
             "resumed_from": self.resumed_from,
             "stopped_by": self.stopped_by,
             "moves": self.moves,
+            "move_note": self.move_note,
         }
 
 
@@ -323,7 +328,8 @@ class Posterior:
         lines = [
             f"posterior: {self.n_draws} draws ({self.chain_shape[1]} walkers, "
             f"{self.settings.n_steps} steps, burn-in {self.settings.burn_in}, thin "
-            f"{self.settings.thin}, seed {self.settings.seed}, {self.settings.moves} moves)",
+            f"{self.settings.thin}, seed {self.settings.seed}, {self.settings.moves} moves)"
+            + (f"\nmoves: {self.settings.move_note}" if self.settings.move_note else ""),
             f"{'name':<24}{'median':>13}{'q05':>13}{'q95':>13}{'rhat':>8}{'ess':>8}",
         ]
         for name, s in self.summary().items():

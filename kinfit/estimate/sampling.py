@@ -33,6 +33,9 @@ from kinfit.estimate.log_posterior import (
     scale_estimate,
     scale_values,
 )
+from kinfit.estimate.moves import WEIGHT as MOVE_WEIGHT
+from kinfit.estimate.moves import WIDEN as MOVE_WIDEN
+from kinfit.estimate.moves import StudentProposal, laplace_proposal
 from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.problem import Problem
 
@@ -40,6 +43,29 @@ __all__ = ['sample_problem', 'STOP_RULES', 'LogPosterior', 'scale_estimate']
 
 #: Stopping rules of :func:`sample_problem`.
 STOP_RULES = ("converged", "autocorrelation")
+
+def _move_plan(target: LogPosterior, x0: NDArray[np.float64], width: NDArray[np.float64],
+               kind: str, stored: dict[str, Any] | None) -> tuple[StudentProposal | None, str]:
+    """The independence proposal of ``"de-laplace"`` (the checkpoint's when resuming) and a
+    note of what the moves are; no proposal, and the reason, when the curvature fails."""
+    if kind != "de-laplace":
+        return None, ""
+    proposal: StudentProposal | None
+    if stored is not None:
+        if stored.get("proposal") is None:
+            return None, str(stored.get("move_note", ""))
+        proposal = StudentProposal.from_dict(stored["proposal"])
+    else:
+        lo = np.full(target.ndim, -np.inf)
+        hi = np.full(target.ndim, np.inf)
+        lo[: target.p], hi[: target.p] = target.space.internal_bounds()
+        proposal, reason = laplace_proposal(target, target.to_internal(x0), lo, hi, width)
+        if proposal is None:
+            return None, f"DE alone: no independence move because {reason}"
+    return proposal, (f"DE {1 - MOVE_WEIGHT:.0%} mixed with an independence move "
+                      f"{MOVE_WEIGHT:.0%}: multivariate t (nu {proposal.nu:g}) centred on the "
+                      f"least-squares optimum, Laplace covariance x {MOVE_WIDEN:g}")
+
 
 def _int_option(name: str, value: object, low: int) -> int:
     if isinstance(value, bool) or not isinstance(value, int | np.integer) or value < low:
@@ -153,7 +179,7 @@ def sample_problem(
     rhat_max: float = RHAT_MAX,
     ess_min: float = ESS_MIN,
     stop_rule: str = "converged",
-    moves: str = "de",
+    moves: str = "de-laplace",
 ) -> Posterior:
     """Sample the posterior of a problem's parameters (and error scales) with emcee.
 
@@ -207,11 +233,15 @@ def sample_problem(
         (length, R-hat and ESS); ``"autocorrelation"`` once the length test alone passes
         (emcee's rule; R-hat over walkers then often lies near ``1 + tau / n_steps``, about
         1.02 at 50 tau, and the verdict may say "not converged").
-    moves : {"de", "stretch"}
-        Proposal (see :data:`MOVES`): ``"de"`` (default), emcee's differential-evolution
-        move; ``"stretch"``, the affine-invariant stretch move. DE's autocorrelation times are
-        a third to a quarter of the stretch move's on the demo campaign and on Gaussian
-        targets (measured; see DEVELOPERS.md), so it converges in fewer steps.
+    moves : {"de-laplace", "de", "stretch"}
+        Proposal (see :data:`MOVES`): ``"de-laplace"`` (default), emcee's
+        differential-evolution move mixed half and half with an independence move from the
+        Laplace approximation at ``start`` (:mod:`kinfit.estimate.moves`; DE alone, with the
+        reason in ``settings.move_note``, when the optimum is on a bound or the curvature is
+        not positive definite); ``"de"``, the differential-evolution move alone;
+        ``"stretch"``, the affine-invariant stretch move. DE's autocorrelation times are a
+        third to a quarter of the stretch move's on the demo campaign and on Gaussian targets,
+        and the mixed move's a fifth of DE's on the demo (measured; see DEVELOPERS.md).
 
     Returns
     -------
@@ -335,7 +365,11 @@ def sample_problem(
     seed = int(seq.entropy)  # type: ignore[arg-type]
     identity["seed"] = seed
     ball_seq, move_seq = seq.spawn(2)
-    run = _Run(target, identity, walkers, checkpoint)
+    proposal, move_note = _move_plan(target, x0, width, moves,
+                                     ckpt.settings if ckpt is not None else None)
+    identity["proposal"] = None if proposal is None else proposal.to_dict()
+    identity["move_note"] = move_note
+    run = _Run(target, identity, walkers, checkpoint, proposal)
     if ckpt is not None and ckpt.n_steps > 0:
         run.restore(ckpt, max_steps)
     else:

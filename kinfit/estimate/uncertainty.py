@@ -24,6 +24,7 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy.optimize import brentq
 from scipy.stats import t as student_t
+from tqdm.auto import tqdm
 
 from kinfit.errors import StudyError
 from kinfit.estimate.evaluation import Evaluator
@@ -233,6 +234,12 @@ class _SideResult:
     sse_min: float
 
 
+#: Accuracy of a profile-interval endpoint in profile t (so in standard errors of the
+#: parameter): 1e-5, far below the interval's own sampling uncertainty and above the noise of
+#: the inner fits' sums of squares (their relative tolerance times the degrees of freedom).
+TAU_TOL = 1e-5
+
+
 def _profile_side(
     task: tuple[Problem, Estimate, int, int, float, int, SolverSettings],
 ) -> _SideResult:
@@ -298,14 +305,23 @@ def _profile_side(
         sses.append(sse)
         others.append(u)
         if abs(tau) >= tc:
-            # bracket [v_prev, v]: solve |tau| = t_crit, warm-started from the inside point
+            # bracket [v_prev, v]: |tau| = t_crit, warm-started from the inside point. The
+            # endpoint is wanted to TAU_TOL in t (TAU_TOL standard errors in v): first the
+            # point interpolated linearly from the walk (tau is nearly linear over one step),
+            # then Brent's method only when that point misses, on the part of the bracket left
             warm_in = warm.copy()
 
             def g(vv: float, warm_in: NDArray[np.float64] = warm_in) -> float:
                 return abs(tau_of(inner(vv, warm_in)[0], vv)) - tc
 
-            lo, hi = (v_prev, v) if d > 0 else (v, v_prev)
-            root = brentq(g, lo, hi, xtol=1e-12 * max(1.0, abs(v)), rtol=1e-12, maxiter=100)
+            ga, gb = abs(tau_prev) - tc, abs(tau) - tc
+            v_lin = v_prev + (v - v_prev) * (-ga / (gb - ga)) if gb > ga else v
+            g_lin = g(v_lin) if v_lin != v else gb
+            if abs(g_lin) <= TAU_TOL:
+                root = v_lin
+            else:
+                a, b = (v_lin, v) if g_lin < 0 else (v_prev, v_lin)
+                root = brentq(g, min(a, b), max(a, b), xtol=TAU_TOL * se_u, maxiter=100)
             return _SideResult(
                 _phys(space, j, root), True, None, values, taus, sses, others, sse_min
             )
@@ -351,6 +367,7 @@ def profile_intervals(
     xtol: float = 1e-12,
     ftol: float = 1e-12,
     executor: Executor | None = None,
+    progress: bool = False,
 ) -> ProfileResult:
     """Profile-t intervals (Bates & Watts 1988, ch. 6), re-minimising the other parameters.
 
@@ -369,6 +386,8 @@ def profile_intervals(
         Tolerances of the inner (conditional) fits.
     executor : concurrent.futures.Executor, optional
         Runs the 2 x len(names) profile sides in parallel; results do not depend on it.
+    progress : bool
+        Show a tqdm progress bar (on stderr) over the profile sides.
 
     Returns
     -------
@@ -418,7 +437,12 @@ def profile_intervals(
     mapper: Iterable[_SideResult] = (
         executor.map(_profile_side, tasks) if executor else map(_profile_side, tasks)
     )
-    sides = list(mapper)
+    with tqdm(total=len(tasks), disable=not progress, desc="profile intervals", unit="side",
+              leave=False) as bar:
+        sides = []
+        for side in mapper:  # in task order, whatever the executor
+            sides.append(side)
+            bar.update(1)
     idx = [all_names.index(n) for n in chosen]
     lower, upper, lo_c, up_c, notes, traces = [], [], [], [], [], []
     sse_min = estimate.sse

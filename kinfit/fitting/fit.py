@@ -178,7 +178,8 @@ def fit_model(spec: ModelSpec, study: Study, options: FitOptions | None = None, 
     lin = linearised_intervals(est)
     prof = None
     if options.profile and est.converged:
-        prof = profile_intervals(problem, est, executor=options.executor)
+        prof = profile_intervals(problem, est, executor=options.executor,
+                                 progress=options.progress)
     boot = None
     if options.bootstrap:
         boot = bootstrap(problem, est, n_boot=options.bootstrap, kind=(

@@ -2,8 +2,9 @@
 started at the least-squares optimum, posterior predictive bands per run, and per-run derived
 quantities (eta, Weisz-Prater, Carberry) with the probability of each regime.
 
-Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv,
-posterior_bands.csv, posterior.nc (NetCDF-4 with ArviZ's groups) and the sampler
+Writes, into the fit folder: posterior.json (results contract), posterior_draws.csv.gz (or
+posterior_draws.csv on request), posterior_bands.csv, posterior.nc (NetCDF-4 with ArviZ's
+groups) and the sampler
 checkpoint posterior_checkpoint.npz (kept, so ``--resume`` continues it).
 """
 
@@ -17,7 +18,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from kinfit.core.files import manifest, recorded_path, write_frame_atomic, write_json_atomic
+from kinfit.core.files import (
+    DRAWS_FILES,
+    manifest,
+    recorded_path,
+    write_frame_atomic,
+    write_json_atomic,
+)
 from kinfit.estimate.posterior import Posterior
 from kinfit.estimate.sampling import sample_problem
 from kinfit.fitting.model_checks import posterior_adequacy
@@ -66,6 +73,9 @@ class SampleOptions:
         The sampler's stopping rule (see :func:`kinfit.estimate.sampling.sample_problem`).
     moves : str
         The sampler's proposal moves (same reference).
+    draws_csv : bool
+        Write the draws as plain ``posterior_draws.csv`` instead of the compressed
+        ``posterior_draws.csv.gz``.
     """
 
     walkers: int | None = None
@@ -77,7 +87,8 @@ class SampleOptions:
     progress: bool = True
     n_predictive: int = 200
     stop_rule: str = "converged"
-    moves: str = "de"
+    moves: str = "de-laplace"
+    draws_csv: bool = False
 
 
 def posterior_run_summaries(model: Model, draws: np.ndarray, *,
@@ -144,7 +155,10 @@ def sample_study(study: Study, fit: FitResult, out: Path, options: SampleOptions
         frame = pd.DataFrame({"run": np.asarray(model.run_ids)[gr], "time [s]": gt,
                               "q05": fine.q05, "q50": fine.q50, "q95": fine.q95})
     write_frame_atomic(out / "posterior_bands.csv", frame)
-    post.to_csv(out / "posterior_draws.csv")
+    # the draws table: compressed by default, plain CSV on request; one of the two only
+    keep, drop = DRAWS_FILES[::-1] if options.draws_csv else DRAWS_FILES
+    write_frame_atomic(out / keep, post.draws_frame())
+    (out / drop).unlink(missing_ok=True)
     post.to_netcdf(out / "posterior.nc")  # NetCDF-4, ArviZ's groups (h5netcdf is declared)
     pick = rng.choice(post.n_draws, size=min(options.n_predictive // 2 or 1, post.n_draws),
                       replace=False)

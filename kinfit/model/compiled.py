@@ -24,12 +24,18 @@ from kinfit.physics.geometry import characteristic_length, external_area
 from kinfit.physics.kinetics.registry import make_rate_law
 from kinfit.physics.pellet.effectiveness import eta_first_order
 from kinfit.physics.properties import make_fluid
-from kinfit.physics.reactors import BatchGrid, batch_profiles, differential_rates
+from kinfit.physics.reactors import (
+    BatchGrid,
+    batch_profiles,
+    batch_profiles_surface,
+    differential_rates,
+)
 from kinfit.physics.surface import (
     ObservedRate,
     PelletRate,
     observed_rate,
     observed_rate_value,
+    solve_surface,
 )
 from kinfit.physics.temperature import TransportScaling, with_scaled_diffusivity
 from kinfit.study.parameters import ParameterTable
@@ -376,11 +382,29 @@ class Model:
             return observed_rate_value(C, pr, conductance)
 
         if self.spec.reactor == "batch":
-            ceq = np.broadcast_to(pr.C_eq, (theta.shape[0], len(self.run_ids), 1))[..., 0]
-            conc, _ = batch_profiles(rate, self.C0, ceq, self.w, self.times, self.run_index,
-                                     grid=self.grid)
-            return conc
+            return self._batch(pr, conductance, theta.shape[0], self.times, self.run_index)
         return differential_rates(rate, self.C0, self.run_index)
+
+    def _batch(self, pr: PelletRate, conductance: Array, m: int, times: Array,
+               run_index: NDArray[np.int_]) -> Array:
+        """Batch profiles: on a grid in surface concentration where the pellet rate allows it
+        (:attr:`PelletRate.surface_grid`; the film balance is then solved once, at t = 0),
+        else on a grid in bulk concentration with the film balance solved at every point."""
+        ceq = np.broadcast_to(pr.C_eq, (m, len(self.run_ids), 1))[..., 0]
+        times = np.asarray(times, dtype=float)
+        run_index = np.asarray(run_index)
+        if pr.surface_grid:
+            def g(c: Array) -> tuple[Array, Array]:
+                val, dval, *_ = pr(c)
+                return val, dval
+
+            Cb0 = np.broadcast_to(self.C0[None, :, None], (m, len(self.run_ids), 1))
+            Cs0 = np.asarray(solve_surface(Cb0, conductance, g, C_eq=pr.C_eq))
+            return batch_profiles_surface(g, conductance, Cs0[..., 0], ceq, self.w, times,
+                                          run_index, grid=self.grid)
+        conc, _ = batch_profiles(lambda C: observed_rate_value(C, pr, conductance), self.C0,
+                                 ceq, self.w, times, run_index, grid=self.grid)
+        return conc
 
     def _first_order(self, values: Mapping[str, Array]) -> bool:
         """Whether the closed form applies: an irreversible power law of order exactly 1 in a
@@ -422,11 +446,7 @@ class Model:
         if self._first_order(values):
             return self._first_order_profiles(values, times, run_index)
         pr, conductance, _, _ = self._pieces(values)
-        ceq = np.broadcast_to(pr.C_eq, (np.atleast_2d(theta).shape[0], len(self.run_ids), 1))
-        conc, _ = batch_profiles(lambda C: observed_rate_value(C, pr, conductance), self.C0,
-                                 ceq[..., 0], self.w, np.asarray(times, dtype=float),
-                                 np.asarray(run_index), grid=self.grid)
-        return conc
+        return self._batch(pr, conductance, np.atleast_2d(theta).shape[0], times, run_index)
 
     def run_states(self, theta_row: Array, *, thresholds: Thresholds | None = None,
                    concentration: Array | None = None) -> RunState:

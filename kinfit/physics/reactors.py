@@ -15,13 +15,14 @@ integrand is nearly constant (exactly so at first order), so few panels reach 1e
 from __future__ import annotations
 
 from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from kinfit.errors import SolverError
 
-__all__ = ["batch_profiles", "differential_rates", "BatchGrid"]
+__all__ = ["batch_profiles", "batch_profiles_surface", "differential_rates", "BatchGrid"]
 
 Array = NDArray[np.float64]
 
@@ -123,7 +124,6 @@ def batch_profiles(
         raise SolverError("a run starts at or below its equilibrium concentration; "
                           "the batch profile is flat")
     ln_depth = np.log(grid.depth)
-    du = -ln_depth / grid.n_panels  # |du| per panel
     u = np.log(span)[..., None] + grid.s * ln_depth  # (m?, R, K)
     C = ceq[..., None] + np.exp(u)
     r = rate(C)
@@ -137,23 +137,114 @@ def batch_profiles(
     if not np.all(np.isfinite(g) & (g > 0)):
         raise SolverError("the observed rate is zero, negative or not finite inside a batch "
                           "run; check the rate parameters")
+    u_t, g_t, _ = _invert_time(g, u, grid, times, run_index)
+    ri = np.asarray(run_index)[None, :]
+    ceq_obs = ceq[:, ri[0]]
+    conc = ceq_obs + np.exp(u_t)
+    rate_obs = (conc - ceq_obs) / (w[ri[0]][None, :] * g_t)
+    return conc, rate_obs
+
+
+def batch_profiles_surface(
+    pellet_rate: Callable[[Array], tuple[Array, Array]],
+    conductance: Array,
+    Cs0: Array,
+    C_eq: Array,
+    loading: Array,
+    times: Array,
+    run_index: NDArray[np.int_],
+    *,
+    grid: BatchGrid | None = None,
+) -> Array:
+    """Bulk concentrations at the observation times, integrated on a grid in the *surface*
+    concentration: no surface-concentration solve inside the integral.
+
+    With the film balance kc a_m (Cb - Cs) = g(Cs) (g the pellet-averaged rate), Cb is an
+    explicit function of Cs, Cb = Cs + g(Cs)/(kc a_m), and dCb = (1 + g'(Cs)/(kc a_m)) dCs, so
+
+    .. math:: t(C_s) = \\int_{u_s}^{u_{s,0}} \\frac{(C_s' - C_{eq})(1 + g'/(k_c a_m))}
+                      {w\\, g(C_s')}\\, du_s', \\qquad u_s = \\ln (C_s - C_{eq}),
+
+    on the same panels as :func:`batch_profiles` (now in u_s, from the surface concentration
+    at t = 0, the only point where the film balance is solved, down to ``grid.depth`` of it).
+    At the observation times u_s is found by inverting t(u_s); Cb follows from the panel
+    polynomial of ln((Cb - C_eq)/(Cs - C_eq)) through the same grid points.
+
+    Parameters
+    ----------
+    pellet_rate : callable
+        ``g(Cs) -> (g, dg/dCs)`` with Cs of shape (m, R, K), per-run quantities closed over
+        with shape (m, R, 1); mol/(kg s) and its derivative.
+    conductance : ndarray, broadcastable to (m, R, 1)
+        kc a_m, m^3/(kg s); ``inf`` for no film.
+    Cs0 : ndarray, shape (m, R)
+        Surface concentration at t = 0 (the film balance solved at Cb = C0).
+    C_eq : ndarray, broadcastable to (m, R)
+    loading : ndarray, shape (R,)
+    times, run_index : ndarray, shape (n,)
+
+    Returns
+    -------
+    ndarray, shape (m, n)
+
+    Raises
+    ------
+    SolverError
+        When the rate is zero, negative or not finite inside a run.
+    """
+    grid = grid or BatchGrid()
+    Cs0 = np.atleast_2d(np.asarray(Cs0, dtype=float))
+    ceq = np.broadcast_to(np.asarray(C_eq, dtype=float), Cs0.shape)
+    span = Cs0 - ceq
+    if np.any(~(span > 0)):
+        raise SolverError("a run starts at or below its equilibrium concentration; "
+                          "the batch profile is flat")
+    u = np.log(span)[..., None] + grid.s * np.log(grid.depth)  # (m, R, K)
+    x = np.exp(u)                                              # Cs - C_eq
+    gv, dg = pellet_rate(ceq[..., None] + x)
+    shape = np.broadcast_shapes(np.shape(gv), u.shape)
+    gv, dg = np.broadcast_to(gv, shape), np.broadcast_to(dg, shape)
+    u, x = np.broadcast_to(u, shape), np.broadcast_to(x, shape)
+    kf = np.asarray(conductance, dtype=float)
+    w = np.asarray(loading, dtype=float)[None, :, None]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        film = np.where(np.isfinite(kf), 1.0 / kf, 0.0)
+        g = x * (1.0 + dg * film) / (w * gv)                    # dt/d(-u_s), s
+        lift = np.log1p(gv * film / x)                          # ln((Cb - C_eq)/(Cs - C_eq))
+    if not np.all(np.isfinite(g) & (g > 0)) or not np.all(np.isfinite(lift)):
+        raise SolverError("the observed rate is zero, negative or not finite inside a batch "
+                          "run; check the rate parameters")
+    u_t, _, (mi, ri, j, tau, beyond) = _invert_time(g, u, grid, times, run_index)
+    c_lift = _panel_coef(lift, grid)[mi, ri, j]
+    _, lift_t = _panel_time(c_lift, tau)
+    lift_t = np.where(beyond, lift[:, ri[0], grid.n_nodes - 1], lift_t)
+    return ceq[:, ri[0]] + np.exp(u_t + lift_t)
+
+
+def _invert_time(g: Array, u: Array, grid: BatchGrid, times: Array, run_index: NDArray[np.int_]
+                 ) -> tuple[Array, Array, tuple[Any, Any, Any, Array, Any]]:
+    """From dt/d(-u) at the grid points (m, R, K), the grid coordinate u at the observation
+    times (m, n) and dt/d(-u) there; also (mi, ri, panel j, tau, beyond-grid mask) to evaluate
+    other panel polynomials at the same places."""
+    m, R = g.shape[0], g.shape[1]
+    ln_depth = np.log(grid.depth)
+    du = -ln_depth / grid.n_panels  # |du| per panel
     nn, P = grid.n_nodes, grid.n_panels
     g_nodes = g[..., :nn]
-    g_in = g[..., nn:].reshape(m, R, P, grid.interior)
-    samples = np.concatenate([g_nodes[..., :-1, None], g_in, g_nodes[..., 1:, None]], axis=-1)
-    coef = samples @ grid.to_coef.T  # (m, R, P, k)
+    coef = _panel_coef(g, grid)
     full, _ = _panel_time(coef, np.ones(coef.shape[:-1]))
     t_nodes = np.concatenate([np.zeros((m, R, 1)), np.cumsum(du * full, axis=-1)], axis=-1)
-
-    ri = np.asarray(run_index)
+    ri = np.asarray(run_index)[None, :]
+    mi = np.arange(m)[:, None]
     t = np.asarray(times, dtype=float)
-    tn = t_nodes[:, ri, :]  # (m, n, nn)
+    tn = t_nodes[:, ri[0], :]  # (m, n, nn)
     j = np.clip(np.sum(tn <= t[None, :, None], axis=-1) - 1, 0, P - 1)
-    c_obs = np.take_along_axis(coef[:, ri], j[..., None, None], axis=2)[:, :, 0, :]
-    t0 = _take(tn, j)
+    # direct indexing (m, n) of the panel of each observation: no (m, n, P, k) gather
+    c_obs = coef[mi, ri, j]
+    t0 = t_nodes[mi, ri, j]
     target = (t[None, :] - t0) / du  # integral of the panel polynomial to reach
     # Newton on tau in [0, 1], from the linear guess; the integrand is positive
-    tau = np.clip(target / np.maximum(_take(full[:, ri], j), 1e-300), 0.0, 1.0)
+    tau = np.clip(target / np.maximum(full[mi, ri, j], 1e-300), 0.0, 1.0)
     for _ in range(30):
         val, dval = _panel_time(c_obs, tau)
         step = (val - target) / dval
@@ -162,22 +253,25 @@ def batch_profiles(
             tau = tau_new
             break
         tau = tau_new
-    u_node = _take(u[:, ri, :nn], j)
-    u_t = u_node + tau * ln_depth / P
+    u_t = u[mi, ri, j] + tau * ln_depth / P
     _, g_t = _panel_time(c_obs, tau)
     beyond = t[None, :] > tn[..., -1]
-    u_last = u[:, ri, nn - 1]
-    g_last = g_nodes[:, ri, -1]
+    u_last = u[:, ri[0], nn - 1]
+    g_last = g_nodes[:, ri[0], -1]
     u_t = np.where(beyond, u_last - (t[None, :] - tn[..., -1]) / g_last, u_t)
     g_t = np.where(beyond, g_last, g_t)
-    ceq_obs = ceq[:, ri]
-    conc = ceq_obs + np.exp(u_t)
-    rate_obs = (conc - ceq_obs) / (w[ri][None, :] * g_t)
-    return conc, rate_obs
+    return u_t, g_t, (mi, ri, j, tau, beyond)
 
 
-def _take(a: Array, j: NDArray[np.int_]) -> Array:
-    return np.take_along_axis(a, j[..., None], axis=-1)[..., 0]
+def _panel_coef(values: Array, grid: BatchGrid) -> Array:
+    """Monomial coefficients in tau (m, R, P, k) of the panel polynomials through ``values``
+    sampled at the grid points (m, R, K), nodes first."""
+    m, R = values.shape[0], values.shape[1]
+    nn, P = grid.n_nodes, grid.n_panels
+    nodes = values[..., :nn]
+    inner = values[..., nn:].reshape(m, R, P, grid.interior)
+    samples = np.concatenate([nodes[..., :-1, None], inner, nodes[..., 1:, None]], axis=-1)
+    return samples @ grid.to_coef.T
 
 
 def differential_rates(rate: Callable[[Array], Array], C0: Array, run_index: NDArray[np.int_]

@@ -78,6 +78,7 @@ class PelletRate:
         self.De, self.L, self.rho_p, self.geometry = De, L, rho_p, geometry
         order = rate_law.power_law_order(params)
         self.order = None if order is None else _fewest_orders(np.asarray(order, dtype=float))
+        self._eta_cache: dict = {}  # table contractions at self.order, kept between calls
         self.C_eq = np.asarray(rate_law.equilibrium_concentration(T, params, C0=C0), dtype=float)
         # a rate linear in C (first-order reversible): the first-order closed form in C - C_eq
         self.slope: Array | None = None
@@ -92,6 +93,16 @@ class PelletRate:
                 K, m = form
                 kK = np.asarray(rate_law.drate_dC(0.0, T, params, C0=C0), dtype=float)
                 self.lh = (np.asarray(K, dtype=float), int(m), kK)
+
+    @property
+    def surface_grid(self) -> bool:
+        """Whether a batch profile may be integrated on a grid in Cs: d(eta r)/dCs is exact
+        (the interpolant's own slope, or a closed form) and eta r/(Cs - C_eq) stays bounded as
+        Cs falls (a power law of order >= 1, or a rate linear in C), so that a fixed depth in
+        Cs is at least as deep in the bulk concentration."""
+        if self.order is not None:
+            return bool(np.all(self.order >= 1.0))
+        return self.slope is not None
 
     def _rate(self, C: Array) -> Array:
         return self.law.rate(C, self.T, self.p, C0=self.C0)
@@ -110,9 +121,10 @@ class PelletRate:
                 phi = self.L * np.sqrt(np.maximum((n + 1.0) * 0.5 * rv / (self.De * Cs), 0.0))
             phi = np.where(Cs > 0, phi, np.inf)
             if not derivative:
-                eta = eta_power_law(phi, n, self.geometry)
+                eta = eta_power_law(phi, n, self.geometry, cache=self._eta_cache)
                 return eta * r, None, eta, phi, r
-            eta, slope = eta_power_law(phi, n, self.geometry, return_slope=True)
+            eta, slope = eta_power_law(phi, n, self.geometry, return_slope=True,
+                                              cache=self._eta_cache)
             g = eta * r
             # d ln(eta r)/d ln Cs = n + (n-1)/2 * d ln eta/d ln Phi, since Phi ~ Cs^((n-1)/2)
             with np.errstate(divide="ignore", invalid="ignore"):

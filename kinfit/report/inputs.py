@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from kinfit.core.files import file_sha256
+from kinfit.core.files import draws_file, file_sha256
 from kinfit.errors import KinfitError, StudyError
 from kinfit.fitting.results import FitResult
 from kinfit.fitting.saved import model_of_fit
@@ -29,8 +29,8 @@ from kinfit.study.runs import Study
 __all__ = ["ReportInputs", "load_inputs", "OPTIONAL_FILES"]
 
 #: optional files of a fit folder, read when present
-OPTIONAL_FILES = ("posterior.json", "posterior_draws.csv", "posterior_bands.csv",
-                  "diagnosis.json")
+OPTIONAL_FILES = ("posterior.json", "posterior_draws.csv.gz", "posterior_draws.csv",
+                  "posterior_bands.csv", "diagnosis.json")
 _CURVE_POINTS = 160
 
 
@@ -210,8 +210,9 @@ def load_inputs(study: Study | str | Path, fit_dir: str | Path) -> ReportInputs:
     posterior = draws = bands = diagnosis = None
     if (fit_dir / "posterior.json").is_file():
         posterior = _read_json(fit_dir / "posterior.json")
-    if (fit_dir / "posterior_draws.csv").is_file():
-        draws = _read_csv(fit_dir / "posterior_draws.csv", ())
+    found = draws_file(fit_dir)
+    if found is not None:
+        draws = _read_csv(found, ())
     if (fit_dir / "posterior_bands.csv").is_file():
         bands = _read_csv(fit_dir / "posterior_bands.csv", ("run", "time [s]", "q05", "q95"))
         bands = bands.assign(run=bands["run"].astype(str))

@@ -16,6 +16,8 @@ from kinfit.report.figures import (
     INK,
     MUTED,
     REGIME_COLOURS,
+    TRACE_POINTS,
+    TRACE_WALKERS,
     _grid_shape,
     _new_figure,
     _styled,
@@ -124,7 +126,7 @@ def corner_figure(draws: pd.DataFrame, names: Sequence[str], *, units: Mapping[s
                 ax.spines["left"].set_visible(False)
             else:
                 ax.hist2d(data[xj], data[yi], bins=bins, range=[limits[xj], limits[yi]],
-                          cmap=cmap)
+                          cmap=cmap, rasterized=True)  # a raster layer inside the SVG
                 ax.set_ylim(limits[yi])
             if xj in est:
                 ax.axvline(est[xj], color=REGIME_COLOURS["film"], lw=0.8)
@@ -157,14 +159,20 @@ def trace_figure(draws: pd.DataFrame, names: Sequence[str], *,
     for ax, name in zip(axes, cols, strict=True):
         scale, unit = display_scale(draws[name].to_numpy(float),
                                     "-" if name == "log_prob" else units.get(name, ""))
+        # thinned to what the eye can see (at most TRACE_POINTS points per line, about the
+        # panel's width in pixels) and drawn as a raster layer inside the SVG
         if by_walker:
             walkers = draws["walker"].unique()
-            step = max(1, len(walkers) // 24)
+            step = max(1, -(-len(walkers) // TRACE_WALKERS))
             for w in walkers[::step]:
                 sub = draws[draws["walker"] == w]
-                ax.plot(sub["step"], sub[name] * scale, lw=0.45, alpha=0.55, color=CURVE)
+                every = max(1, len(sub) // TRACE_POINTS)
+                ax.plot(sub["step"].to_numpy()[::every], sub[name].to_numpy()[::every] * scale,
+                        lw=0.45, alpha=0.55, color=CURVE, rasterized=True)
         else:
-            ax.plot(np.arange(len(draws)), draws[name] * scale, lw=0.5, color=CURVE)
+            every = max(1, len(draws) // TRACE_POINTS)
+            ax.plot(np.arange(len(draws))[::every], draws[name].to_numpy()[::every] * scale,
+                    lw=0.5, color=CURVE, rasterized=True)
         ax.set_ylabel(f"{name} [{unit}]", fontsize=6.8, rotation=0, ha="right", va="center")
         ax.tick_params(labelsize=6.5)
     axes[-1].set_xlabel(axis_label("step" if by_walker else "draw", "-"))

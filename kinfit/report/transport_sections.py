@@ -367,10 +367,10 @@ def posterior_section(rb: ReportContext) -> Section | None:
     sampler = (post or {}).get("sampler") or {}
     conv = (post or {}).get("convergence") or {}
     if sampler:
-        keys = ("walkers", "steps", "burn_in", "thin", "seed", "moves", "stopped_by",
-                "tau_multiple")
+        keys = ("walkers", "steps", "burn_in", "thin", "seed", "moves", "move_note",
+                "stopped_by", "tau_multiple")
         blocks.append(Facts(tuple((k.replace("_", " "), str(sampler[k])) for k in keys
-                                  if k in sampler)))
+                                  if sampler.get(k) not in (None, ""))))
     if conv:
         ok = bool(conv.get("converged"))
         reasons = "; ".join(map(str, conv.get("reasons") or []))

@@ -16,8 +16,8 @@ from numpy.typing import NDArray
 
 from kinfit.core.units import parse_header, parse_quantity, to_si
 from kinfit.errors import StudyError
-from kinfit.study.tables import read_table, table_line
 from kinfit.study.runs import FACTORS, Run, Study
+from kinfit.study.tables import read_table, table_line
 
 __all__ = ['Condition', 'FACTOR_KINDS', 'FACTOR_ALIASES', 'PAD_RUN', 'campaign_defaults', 'parse_conditions', 'read_conditions', 'conditions_from_argument', 'conditions_study', 'display', 'parse_times']
 

@@ -14,7 +14,7 @@ A negative control repeats the run with the sampler told a noise scale 0.4 times
 (sigma fixed), which must fail the test: it shows the check has power.
 
 Run: ``python tests/benchmarks/bench_sbc.py [--replicates 200] [--seed 1] [--control 60]
-[--stop-rule converged|autocorrelation]``.
+[--stop-rule converged|autocorrelation] [--moves de-laplace|de|stretch]``.
 Prints the rank histogram, the chi-square p-value per parameter, and the time per replicate.
 """
 
@@ -56,6 +56,7 @@ def run_sbc(
     bins: int = 20,
     sigma_factor: float | None = None,
     stop_rule: str = "converged",
+    moves: str = "de-laplace",
 ) -> dict[str, object]:
     """Ranks of the truth among L posterior draws for each replicate.
 
@@ -72,6 +73,8 @@ def run_sbc(
         Negative control: fix sigma at this multiple of the true value instead of sampling it.
     stop_rule : str
         Passed to :func:`sample_problem` (the default rule, or emcee's length rule alone).
+    moves : str
+        Passed to :func:`sample_problem` (the sampler's proposal moves).
     """
     rng = np.random.default_rng(seed)
     names = ["k", "C0"] + (["sigma"] if sigma_factor is None else [])
@@ -112,6 +115,7 @@ def run_sbc(
                 seed=seed * 100000 + r,
                 progress=False,
                 stop_rule=stop_rule,
+                moves=moves,
                 **kwargs,  # type: ignore[arg-type]
             )
         unconverged += not post.converged
@@ -148,16 +152,18 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--control", type=int, default=60, help="replicates of the negative control")
     ap.add_argument("--stop-rule", default="converged", choices=["converged", "autocorrelation"])
+    ap.add_argument("--moves", default="de-laplace", choices=["de-laplace", "de", "stretch"])
     args = ap.parse_args()
-    res = run_sbc(args.replicates, args.seed, stop_rule=args.stop_rule)
+    res = run_sbc(args.replicates, args.seed, stop_rule=args.stop_rule, moves=args.moves)
     _print(
         f"SBC, {args.replicates} replicates, k, C0 and sigma sampled, stop rule "
-        f"'{args.stop_rule}' (expect p > 0.01):",
+        f"'{args.stop_rule}', moves '{args.moves}' (expect p > 0.01):",
         res,
     )
     if args.control > 0:
         ctl = run_sbc(
-            args.control, args.seed + 1, bins=10, sigma_factor=0.4, stop_rule=args.stop_rule
+            args.control, args.seed + 1, bins=10, sigma_factor=0.4, stop_rule=args.stop_rule,
+            moves=args.moves,
         )
         _print(
             f"negative control, {args.control} replicates, sigma fixed at 0.4x the truth "

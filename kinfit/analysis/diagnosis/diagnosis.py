@@ -23,7 +23,13 @@ from kinfit.analysis.diagnosis.model_free import FactorTest, NotPossible, model_
 from kinfit.analysis.diagnosis.next_runs import NextRun, next_runs
 from kinfit.analysis.diagnosis.per_run import N_DRAWS, posterior_matrix, run_diagnostics
 from kinfit.analysis.transport_limits import DIAMETER_RANGE, SPEED_RANGE
-from kinfit.core.files import prepare_out_dir, recorded_path, to_plain, write_json_atomic
+from kinfit.core.files import (
+    draws_file,
+    prepare_out_dir,
+    recorded_path,
+    to_plain,
+    write_json_atomic,
+)
 from kinfit.errors import StudyError
 from kinfit.fitting.fit import FitOptions, fit_model, main_spec
 from kinfit.fitting.results import FitResult
@@ -36,8 +42,9 @@ __all__ = ['Diagnosis', 'diagnose', 'read_draws', 'DIAGNOSIS_VERSION', 'SOURCES'
 
 Array = NDArray[np.float64]
 DIAGNOSIS_VERSION = 1
-#: the posterior draws table that ``kinfit sample`` writes into the fit folder
-DRAWS_FILE = "posterior_draws.csv"
+#: the posterior draws table that ``kinfit sample`` writes into the fit folder (compressed by
+#: default; the plain CSV on request, see :data:`kinfit.core.files.DRAWS_FILES`)
+DRAWS_FILE = "posterior_draws.csv.gz"
 
 #: where each part of the diagnosis comes from
 SOURCES = {
@@ -343,8 +350,8 @@ def diagnose(study: Study, fit_result: FitResult | None = None, *, posterior: An
                      f"iterate ({fit_result.fit.get('message', '')})")
     model, theta = model_of_fit(study, fit_result)
     if posterior is None and posterior_dir is not None:
-        path = Path(posterior_dir) / DRAWS_FILE
-        if path.is_file():
+        path = draws_file(posterior_dir)
+        if path is not None:
             posterior = read_draws(path)
             notes.append(f"posterior draws from {recorded_path(path, study.path)}")
     draws = None if posterior is None else posterior_matrix(model, posterior)

@@ -356,19 +356,28 @@ class OrderSet:
     values: Any         # distinct orders, or None (one order per point)
     kidx: Any           # index into ``values`` per point, or None
 
-    def __init__(self, n_flat: Array, values: Array | None, kidx: Array | None) -> None:
+    def __init__(self, n_flat: Array, values: Array | None, kidx: Array | None,
+                 cache: dict[Any, Any] | None = None) -> None:
         self.n = n_flat
         self.values, self.kidx = values, kidx
+        self.cache = cache
 
     def curves(self, patch: _Patch, mask: Array) -> _Curves:
         if self.values is not None:
             # contract only the distinct orders this patch serves; the others are never indexed
             top = patch.n0 + patch.hn * patch.n_cells[0]
             used = (self.values >= patch.n0 - 1e-9) & (self.values <= top + 1e-9)
-            if used.all():
-                return _Curves(patch, self.values, self.kidx[mask])
-            remap = np.cumsum(used) - 1
-            return _Curves(patch, self.values[used], remap[self.kidx[mask]])
+            values = self.values if used.all() else self.values[used]
+            kidx = self.kidx[mask] if used.all() else (np.cumsum(used) - 1)[self.kidx[mask]]
+            if self.cache is None:
+                return _Curves(patch, values, kidx)
+            # the contraction depends on the orders alone: the caller's cache keeps it over
+            # the Newton iterations of one prediction (same orders, other moduli)
+            key = (id(patch), values.tobytes())
+            tab = self.cache.get(key)
+            if tab is None:
+                tab = self.cache[key] = _Curves(patch, values, kidx).tab
+            return _Curves._raw(patch, tab, kidx, None, None)
         return _Curves(patch, self.n[mask], None)
 
 

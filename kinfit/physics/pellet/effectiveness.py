@@ -125,8 +125,10 @@ def eta_first_order(phi: ArrayLike, geometry: str) -> Array:
 # n-th order
 
 
-def _order_set(order: Array, shape: tuple[int, ...], keep: Array) -> _table.OrderSet:
-    """Describe the orders of the points ``keep`` (flat mask of the broadcast shape)."""
+def _order_set(order: Array, shape: tuple[int, ...], keep: Array,
+               cache: dict | None = None) -> _table.OrderSet:
+    """Describe the orders of the points ``keep`` (flat mask of the broadcast shape); ``cache``
+    keeps the table contracted at each distinct order between calls with the same orders."""
     total = int(np.prod(shape)) if shape else 1
     reduced = order
     if order.size * 4 > total and order.ndim and order.shape[-1] > 1:
@@ -136,12 +138,14 @@ def _order_set(order: Array, shape: tuple[int, ...], keep: Array) -> _table.Orde
     flat_n = np.broadcast_to(order, shape).ravel()[keep]
     if reduced.size <= 4096 and reduced.size * 4 <= max(total, 4):
         index = np.broadcast_to(np.arange(reduced.size).reshape(reduced.shape), shape)
-        return _table.OrderSet(flat_n, reduced.ravel().astype(float), index.ravel()[keep])
+        return _table.OrderSet(flat_n, reduced.ravel().astype(float), index.ravel()[keep],
+                               cache)
     return _table.OrderSet(flat_n, None, None)
 
 
 def eta_power_law(phi: ArrayLike, order: ArrayLike, geometry: str, *,
-                  return_slope: bool = False) -> Array | tuple[Array, Array]:
+                  return_slope: bool = False, cache: dict | None = None
+                  ) -> Array | tuple[Array, Array]:
     """Effectiveness factor of an isothermal n-th order reaction, 0 <= n <= 3.
 
     Parameters
@@ -155,6 +159,9 @@ def eta_power_law(phi: ArrayLike, order: ArrayLike, geometry: str, *,
     geometry : {'slab', 'cylinder', 'sphere'}
     return_slope : bool, optional
         Also return :math:`d\\ln\\eta/d\\ln\\Phi` (exact derivative of the interpolant).
+    cache : dict, optional
+        Keeps the table's contraction at each distinct order between calls that share the
+        orders (a caller's Newton iterations); pass the same empty dict to each such call.
 
     Returns
     -------
@@ -212,7 +219,7 @@ def eta_power_law(phi: ArrayLike, order: ArrayLike, geometry: str, *,
     eta = np.where(np.isnan(flat_phi), np.nan, np.where(flat_phi == 0, 1.0, 0.0))
     slope = np.where(np.isnan(flat_phi), np.nan, np.where(flat_phi == 0, 0.0, -1.0))
     if keep.any():
-        orders = _order_set(order, shape, keep)
+        orders = _order_set(order, shape, keep, cache)
         f, df = _table.log_eta(_table.power_law_table(geometry), flat_phi[keep], orders)
         eta[keep] = np.exp(f)
         slope[keep] = df
