@@ -24,6 +24,7 @@ from cycler import cycler
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
+from matplotlib.ticker import LogFormatterSciNotation
 from numpy.typing import NDArray
 
 __all__ = [
@@ -145,6 +146,32 @@ def _palette_png(rgba: NDArray[np.uint8]) -> bytes:
 
 # ---------------------------------------------------------------------------------- units
 _SUPERSCRIPT = str.maketrans("0123456789-+", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺")
+
+
+class _PlainLogFormatter(LogFormatterSciNotation):
+    """matplotlib's scientific log-axis tick labels ("10⁻²", "2×10⁻¹") written as plain text
+    with Unicode superscripts instead of mathtext: the same labels, without a mathtext parse
+    and layout for every tick in every output format."""
+
+    def __call__(self, x: float, pos: int | None = None) -> str:
+        label = super().__call__(x, pos)
+        head, tail = "$\\mathdefault{", "}$"
+        if not (label.startswith(head) and label.endswith(tail)):
+            return label
+        body = label[len(head):-len(tail)].replace("\\times", "×")
+        body = re.sub(r"\^\{(-?\d+)\}", lambda m: m.group(1).translate(_SUPERSCRIPT), body)
+        if any(c in body for c in "\\{}^$"):
+            return label  # a form not foreseen here: leave it to mathtext
+        return body.replace("-", "\u2212")
+
+
+def _log_scale(ax: Any, which: str) -> None:
+    """A base-10 log scale on axis ``which`` ("x" or "y") with plain-text tick labels (the
+    formatters matplotlib's log scale sets by default, minus mathtext)."""
+    (ax.set_xscale if which == "x" else ax.set_yscale)("log")
+    axis = ax.xaxis if which == "x" else ax.yaxis
+    axis.set_major_formatter(_PlainLogFormatter(10))
+    axis.set_minor_formatter(_PlainLogFormatter(10, labelOnlyBase=False))
 
 
 def pretty_unit(unit: str | None) -> str:
@@ -455,7 +482,7 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
         if a.size:
             ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker="+", ms=9, mew=1.3, color=INK,
                     zorder=3, label=apparent_label)
-    ax.set_yscale("log")
+    _log_scale(ax, "y")
     shown = [float(k.min()), float(k.max())] + [p[2] for p in per_run if p[2] > 0] + [
         p[1] for p in apparent if p[1] > 0]
     ax.set_ylim(min(shown) / 4.0, max(shown) * 4.0)
@@ -509,8 +536,8 @@ def effectiveness_figure(*, geometry: str, order: float,
                 ms=4.5, mec="white", mew=0.4)
         if reg not in present:
             present.append(reg)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    _log_scale(ax, "x")
+    _log_scale(ax, "y")
     ax.set_ylim(min(0.01, float(eta.min())), 1.3)
     ax.set_xlim(phi[0], phi[-1])
     ax.set_xlabel(axis_label("generalised Thiele modulus Φ (L = Vp/Sp)", "-"))
@@ -586,8 +613,8 @@ def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry
         points.append((rid, xw, yc))
         if reg not in present:
             present.append(reg)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    _log_scale(ax, "x")
+    _log_scale(ax, "y")
     ax.set_xlim(x_lo, x_hi)
     ax.set_ylim(y_lo, y_hi)
     _label_points(ax, points, fontsize=6.2)
