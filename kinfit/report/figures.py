@@ -23,6 +23,7 @@ import pandas as pd
 from cycler import cycler
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import LogFormatterSciNotation
 from numpy.typing import NDArray
 
 from kinfit.physics.kinetics.arrhenius import GAS_CONSTANT
@@ -108,31 +109,65 @@ def _new_figure(width: float, height: float) -> Figure:
 def render(fig: Figure) -> tuple[bytes, str]:
     """PNG bytes and SVG text of a figure (deterministic: no dates, fixed SVG ids).
 
-    The layout is computed once, for the PNG, and kept for the SVG."""
+    The layout is computed once, in the Agg draw at :data:`PNG_DPI`, and kept for the SVG; the
+    Agg canvas's pixels go straight to the palette PNG (no intermediate RGBA PNG to encode and
+    decode again)."""
     with matplotlib.rc_context(cast(Any, STYLE)):
-        png = io.BytesIO()
-        fig.savefig(png, format="png", dpi=PNG_DPI, metadata={"Software": None})
+        dpi = fig.dpi
+        fig.set_dpi(PNG_DPI)
+        try:
+            canvas = cast(FigureCanvasAgg, fig.canvas)
+            canvas.draw()
+            png = _palette_png(np.asarray(canvas.buffer_rgba()))
+        finally:
+            fig.set_dpi(dpi)
         fig.set_layout_engine("none")
         svg = io.BytesIO()
         fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
-    return _palette_png(png.getvalue()), svg.getvalue().decode("utf-8")
+    return png, svg.getvalue().decode("utf-8")
 
 
-def _palette_png(data: bytes) -> bytes:
-    """The PNG with a 256-colour palette (median cut; Pillow, matplotlib's own dependency):
-    a figure's few colours and their anti-aliasing fit in it, at a third to a half the size
-    of RGBA (the report embeds every PNG)."""
+def _palette_png(rgba: NDArray[np.uint8]) -> bytes:
+    """The PNG of an RGBA pixel array with a 256-colour palette (Pillow's fast octree,
+    Pillow being matplotlib's own dependency): a figure's few colours and their anti-aliasing
+    fit in it, at a third to a half the size of RGBA (the report embeds every PNG)."""
     from PIL import Image
 
-    with Image.open(io.BytesIO(data)) as im:
-        pal = im.convert("RGB").quantize(colors=256, method=Image.Quantize.MEDIANCUT)
-        out = io.BytesIO()
-        pal.save(out, format="png", compress_level=6)
+    im = Image.fromarray(rgba, "RGBA").convert("RGB")
+    pal = im.quantize(colors=256, method=Image.Quantize.FASTOCTREE)
+    out = io.BytesIO()
+    pal.save(out, format="png", compress_level=6)
     return out.getvalue()
 
 
 # ---------------------------------------------------------------------------------- units
 _SUPERSCRIPT = str.maketrans("0123456789-+", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺")
+
+
+class _PlainLogFormatter(LogFormatterSciNotation):
+    """matplotlib's scientific log-axis tick labels ("10⁻²", "2×10⁻¹") written as plain text
+    with Unicode superscripts instead of mathtext: the same labels, without a mathtext parse
+    and layout for every tick in every output format."""
+
+    def __call__(self, x: float, pos: int | None = None) -> str:
+        label = super().__call__(x, pos)
+        head, tail = "$\\mathdefault{", "}$"
+        if not (label.startswith(head) and label.endswith(tail)):
+            return label
+        body = label[len(head):-len(tail)].replace("\\times", "×")
+        body = re.sub(r"\^\{(-?\d+)\}", lambda m: m.group(1).translate(_SUPERSCRIPT), body)
+        if any(c in body for c in "\\{}^$"):
+            return label  # a form not foreseen here: leave it to mathtext
+        return body.replace("-", "\u2212")
+
+
+def _log_scale(ax: Any, which: str) -> None:
+    """A base-10 log scale on axis ``which`` ("x" or "y") with plain-text tick labels (the
+    formatters matplotlib's log scale sets by default, minus mathtext)."""
+    (ax.set_xscale if which == "x" else ax.set_yscale)("log")
+    axis = ax.xaxis if which == "x" else ax.yaxis
+    axis.set_major_formatter(_PlainLogFormatter(10))
+    axis.set_minor_formatter(_PlainLogFormatter(10, labelOnlyBase=False))
 
 
 def pretty_unit(unit: str | None) -> str:
@@ -398,7 +433,7 @@ def arrhenius_figure(*, k_ref: float, activation_energy: float, reference_temper
         if a.size:
             ax.plot(1e3 / a[:, 0], a[:, 1], ls="none", marker="+", ms=9, mew=1.3, color=INK,
                     zorder=3, label=apparent_label)
-    ax.set_yscale("log")
+    _log_scale(ax, "y")
     shown = [float(k.min()), float(k.max())] + [p[2] for p in per_run if p[2] > 0] + [
         p[1] for p in apparent if p[1] > 0]
     ax.set_ylim(min(shown) / 4.0, max(shown) * 4.0)
@@ -452,8 +487,8 @@ def effectiveness_figure(*, geometry: str, order: float,
                 ms=4.5, mec="white", mew=0.4)
         if reg not in present:
             present.append(reg)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    _log_scale(ax, "x")
+    _log_scale(ax, "y")
     ax.set_ylim(min(0.01, float(eta.min())), 1.3)
     ax.set_xlim(phi[0], phi[-1])
     ax.set_xlabel(axis_label("generalised Thiele modulus Φ (L = Vp/Sp)", "-"))
@@ -529,8 +564,8 @@ def regime_map_figure(runs: Sequence[tuple[str, float, float, str]], *, carberry
         points.append((rid, xw, yc))
         if reg not in present:
             present.append(reg)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    _log_scale(ax, "x")
+    _log_scale(ax, "y")
     ax.set_xlim(x_lo, x_hi)
     ax.set_ylim(y_lo, y_hi)
     _label_points(ax, points, fontsize=6.2)
