@@ -465,6 +465,7 @@ def test_first_order_effectiveness_reference_values(geometry, column):
 def test_every_axis_has_a_unit(fitted, full_report):
     """Each axis that shows numbers carries a label with a unit in brackets."""
     from kinfit.report import figures as fg
+    from kinfit.report import transport_figures as tf
     from kinfit.report import posterior_figures as pf
 
     rng = np.random.default_rng(seed=1)
@@ -481,9 +482,9 @@ def test_every_axis_has_a_unit(fitted, full_report):
         fg.arrhenius_figure(k_ref=0.05, activation_energy=6e4, reference_temperature=323.15,
                             temperatures=[313.15, 333.15], k_unit="mol/(kg*s)",
                             per_run=[("A", 313.15, 0.02, "film")], apparent=[(333.15, 0.1)]),
-        fg.effectiveness_figure(geometry="sphere", order=1.0,
+        tf.effectiveness_figure(geometry="sphere", order=1.0,
                                 runs=[("A", 2.0, 0.42, "pore")]),
-        fg.regime_map_figure([("A", 0.0, 0.2, "film"), ("B", 0.5, 0.001, "pore")],
+        tf.regime_map_figure([("A", 0.0, 0.2, "film"), ("B", 0.5, 0.001, "pore")],
                              carberry_limit=0.05, weisz_prater_limit=0.033),
         pf.correlation_figure(["x", "y"], np.array([[1.0, 0.3], [0.3, 1.0]])),
         pf.corner_figure(draws, ["x", "y"], units={"x": "m/s", "y": "1"}),
@@ -506,13 +507,13 @@ def test_every_axis_has_a_unit(fitted, full_report):
 def test_regime_map_labels_coincident_runs_once_and_do_not_overlap():
     """Runs that sit on the same spot share one label; no two labels overprint (checked on
     the drawn text boxes)."""
-    from kinfit.report import figures as fg
+    from kinfit.report import transport_figures as tf
 
     runs = [("R01", 0.02, 0.03, "kinetic"), ("R02", 0.02, 0.03, "kinetic"),
             ("R11", 4.6, 0.57, "film"), ("R12", 4.6, 0.57, "film"), ("R19", 7.0, 0.68, "film"),
             ("R20", 7.0, 0.68, "film"), ("R23", 8.0, 0.50, "film"), ("R03", 2.7, 0.44, "mixed"),
             ("R15", 5.0, 0.39, "pore"), ("R07", 2.9, 0.27, "pore")]
-    fig = fg.regime_map_figure(runs, carberry_limit=0.033, weisz_prater_limit=0.033)
+    fig = tf.regime_map_figure(runs, carberry_limit=0.033, weisz_prater_limit=0.033)
     fig.canvas.draw()
     ax = fig.axes[0]
     labels = [t for t in ax.texts if t.get_text().startswith("R")]
@@ -533,10 +534,10 @@ def test_regime_map_is_the_same_in_every_process():
     import sys
 
     results = Path(__file__).resolve().parents[1] / "reports" / "demo" / "results.json"
-    code = ("import json, sys; from kinfit.report import figures as fg; "
+    code = ("import json, sys; from kinfit.report import figures as fg; from kinfit.report import transport_figures as tf; "
             f"d = json.load(open({str(results)!r}))['runs']; "
             "runs = [(k, v['weisz_prater'], v['carberry'], v['regime']) for k, v in d.items()]; "
-            "fig = fg.regime_map_figure(runs, carberry_limit=0.0332, weisz_prater_limit=0.0333); "
+            "fig = tf.regime_map_figure(runs, carberry_limit=0.0332, weisz_prater_limit=0.0333); "
             "sys.stdout.write(fg.render(fig)[1])")
     out = [subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           check=True, timeout=120).stdout for _ in range(2)]

@@ -19,6 +19,7 @@ from kinfit.physics.criteria import THRESHOLD_SOURCES
 from kinfit.physics.resistances import REGIMES
 from kinfit.report import figures as fg
 from kinfit.report import posterior_figures as pf
+from kinfit.report import transport_figures as tf
 from kinfit.report.content import (
     CRITERIA_KEYS,
     FACTOR_LABEL,
@@ -114,7 +115,7 @@ def transport_section(rb: ReportContext) -> Section:
                 rb.regimes[rid]) for rid, r in res.runs.items()]
         b = rb.figure("regime_map", "Regime map: Carberry number (film) against "
                         "Weisz–Prater number (pores) for each run, with the thresholds "
-                        "in use (dashed).", lambda: fg.regime_map_figure(
+                        "in use (dashed).", lambda: tf.regime_map_figure(
                             pts, carberry_limit=float(ca_lim),
                             weisz_prater_limit=float(wp_lim)), "regime map")
         if b:
@@ -136,7 +137,7 @@ def transport_section(rb: ReportContext) -> Section:
                     f"modulus for a {geometry} (order {fmt(order, 3)}), with each run at "
                     "its initial conditions" + (" and its posterior 90 % intervals"
                                                 if intervals else "") + ".",
-                    lambda: fg.effectiveness_figure(geometry=geometry, order=order,
+                    lambda: tf.effectiveness_figure(geometry=geometry, order=order,
                                                     runs=pts_eta, intervals=intervals,
                                                     note=note),
                     "effectiveness factor against Thiele modulus")
