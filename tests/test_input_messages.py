@@ -113,7 +113,7 @@ def test_workbook_sheet_messages(tmp_path):
         load_study(tmp_path / "study.toml")
     (tmp_path / "study.toml").write_text(
         STUDY.replace('runs = "runs.csv"', 'runs = { file = "book.xlsx", sheet = "Runs" }'))
-    with pytest.raises(StudyError, match=r"no sheet 'Runs'; its sheets are \['cover', 'runs'\]"):
+    with pytest.raises(StudyError, match=r"no sheet 'Runs'; its sheets are 'cover', 'runs'"):
         load_study(tmp_path / "study.toml")
     (tmp_path / "study.toml").write_text(
         STUDY.replace('runs = "runs.csv"', 'runs = { file = "book.xlsx", sheet = "runs" }'))

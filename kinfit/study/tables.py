@@ -83,14 +83,16 @@ def _read_workbook(path: Path, sheet: Any) -> pd.DataFrame:
             f"{path.name}: cannot read the workbook ({type(exc).__name__}: "
             f"{printable(exc, limit=160)}); save it again as .xlsx or export it as CSV"
         ) from None
-    names = [str(n) for n in book.sheet_names]
-    if isinstance(sheet, str) and sheet not in names:
-        raise StudyError(f"{path.name}: the workbook has no sheet '{printable(sheet)}'; its "
-                         f"sheets are {names}")
-    if isinstance(sheet, int) and not 0 <= sheet < len(names):
-        raise StudyError(f"{path.name}: sheet number {sheet} does not exist (counting from 0); "
-                         f"the workbook's sheets are {names}")
-    frame = pd.read_excel(book, sheet_name=sheet, dtype=object)
+    with book:  # closes the file on every path, refusals included
+        names = [str(n) for n in book.sheet_names]
+        listed = ", ".join(f"'{n}'" for n in names)
+        if isinstance(sheet, str) and sheet not in names:
+            raise StudyError(f"{path.name}: the workbook has no sheet '{printable(sheet)}'; "
+                             f"its sheets are {listed}")
+        if isinstance(sheet, int) and not 0 <= sheet < len(names):
+            raise StudyError(f"{path.name}: sheet number {sheet} does not exist (counting from "
+                             f"0); the workbook's sheets are {listed}")
+        frame = pd.read_excel(book, sheet_name=sheet, dtype=object)
     # the header is the sheet's first row; pandas keeps blank rows below it as empty rows
     frame.attrs["row_lines"] = list(range(2, len(frame) + 2))
     frame.attrs["sheets"] = names
