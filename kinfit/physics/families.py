@@ -4,6 +4,7 @@ SI units, limits)."""
 
 from __future__ import annotations
 
+import inspect
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -12,7 +13,7 @@ from typing import Any, ClassVar
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from kinfit.errors import ModelError, StudyError
+from kinfit.errors import ModelError, StudyError, did_you_mean
 
 __all__ = ["Interval", "check_limits", "positive_option", "DeclaredParameters"]
 
@@ -152,3 +153,21 @@ class DeclaredParameters:
     def parameter_limits(self) -> dict[str, Interval]:
         """Accepted range of each parameter (parameters not listed need only be finite)."""
         return dict(self._limits)
+
+
+def check_keyword_options(cls: type, options: Mapping[str, Any], what: str) -> None:
+    """Refuse options that ``cls``'s keyword-only constructor does not take, and demand those
+    without a default; ``what`` names the family member in the message (e.g. "rate law 'power'").
+    A constructor that takes ``**kwargs`` checks its own options."""
+    params = inspect.signature(cls.__init__).parameters  # type: ignore[misc]
+    if any(prm.kind is inspect.Parameter.VAR_KEYWORD for prm in params.values()):
+        return
+    valid = [n for n, prm in params.items() if prm.kind is inspect.Parameter.KEYWORD_ONLY]
+    unknown = sorted(set(options) - set(valid))
+    if unknown:
+        raise StudyError(f"{what}: option(s) {unknown} not recognised"
+                         f"{did_you_mean(unknown[0], valid)}; valid options are {valid}")
+    missing = [n for n in valid if params[n].default is inspect.Parameter.empty
+               and n not in options]
+    if missing:
+        raise StudyError(f"{what}: option(s) {missing} must be given")

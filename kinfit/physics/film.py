@@ -28,7 +28,13 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from kinfit.errors import StudyError
-from kinfit.physics.families import DeclaredParameters, Interval, check_limits, positive_option
+from kinfit.physics.families import (
+    DeclaredParameters,
+    Interval,
+    check_keyword_options,
+    check_limits,
+    positive_option,
+)
 from kinfit.physics.properties import Fluid
 from kinfit.physics.sherwood import (
     kolmogorov_reynolds,
@@ -480,18 +486,7 @@ def make_film_model(name: str, **options: Any) -> FilmModel:
         )
     params = inspect.signature(cls.__init__).parameters
     if not any(prm.kind is inspect.Parameter.VAR_KEYWORD for prm in params.values()):
-        valid = [n for n, prm in params.items() if prm.kind is inspect.Parameter.KEYWORD_ONLY]
-        unknown = sorted(set(options) - set(valid))
-        if unknown:
-            raise StudyError(
-                f"[film] model '{name}': option(s) {unknown} not recognised; valid options are "
-                f"{valid}"
-            )
-        missing = [
-            n for n in valid if params[n].default is inspect.Parameter.empty and n not in options
-        ]
-        if missing:
-            raise StudyError(f"[film] model '{name}': option(s) {missing} must be given")
+        check_keyword_options(cls, options, f"[film] model '{name}'")
     elif "correlation" not in options:
         raise StudyError(
             f"[film] model '{name}': option 'correlation' must be given; use one of "

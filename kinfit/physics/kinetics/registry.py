@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-import inspect
 from typing import Any
 
 from kinfit.errors import StudyError, did_you_mean
+from kinfit.physics.families import check_keyword_options
 from kinfit.physics.kinetics.base import RateLaw
 from kinfit.physics.kinetics.expression import ExpressionRate
 from kinfit.physics.kinetics.langmuir_hinshelwood import LangmuirHinshelwood
@@ -53,17 +53,5 @@ def make_rate_law(name: str, **options: Any) -> RateLaw:
             f"[kinetics] rate_law '{name}' is not recognised{did_you_mean(name, RATE_LAWS)}; "
             f"use one of {sorted(RATE_LAWS)}"
         )
-    params = inspect.signature(cls.__init__).parameters
-    valid = [n for n, prm in params.items() if prm.kind is inspect.Parameter.KEYWORD_ONLY]
-    unknown = sorted(set(options) - set(valid))
-    if unknown:
-        raise StudyError(
-            f"rate law '{name}': option(s) {unknown} not recognised"
-            f"{did_you_mean(unknown[0], valid)}; valid options are {valid}"
-        )
-    missing = [
-        n for n in valid if params[n].default is inspect.Parameter.empty and n not in options
-    ]
-    if missing:
-        raise StudyError(f"rate law '{name}': option(s) {missing} must be given")
+    check_keyword_options(cls, options, f"rate law '{name}'")
     return cls(**options)
